@@ -1,0 +1,149 @@
+"""``lcao curve``: a potential-energy curve with the state-following protocol."""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+
+HELP = "scan the bond distance of a diatomic and write points.csv and curve.json"
+DESCRIPTION = (
+    "Scan the bond distance of a diatomic with the state-following protocol (two sweeps, rescue ladder,"
+    " stability analysis), keep every point in the results store, and write points.csv and curve.json."
+    " Distances are in angstrom, energies in hartree."
+)
+
+#: A run with more than this fraction of flagged points exits with status 1.
+MAX_FLAGGED_FRACTION = 0.25
+
+
+def add_arguments(p: argparse.ArgumentParser) -> None:
+    p.add_argument("species", help="formula with optional charge: N2, CO, HCl, NO+, CN-, C2^2-")
+    add_level_options(p)
+    add_grid_options(p)
+    add_store_options(p)
+    p.add_argument("--out", metavar="DIR", help="output folder (default: lcao-results/SPECIES_METHOD_BASIS)")
+
+
+def add_level_options(p) -> None:
+    g = p.add_argument_group("level of theory and state")
+    g.add_argument("--level", default="HF/6-31G", help="METHOD/BASIS, e.g. HF/STO-3G, UHF/6-31G*, ROHF/cc-pVDZ (default HF/6-31G)")
+    g.add_argument(
+        "--d-shells",
+        choices=("cartesian", "spherical"),
+        help="override the basis set's d-shell convention (Pople 6-31G sets cartesian, others spherical)",
+    )
+    g.add_argument("--charge", type=_int_arg("--charge"), help="net charge (instead of a suffix such as NO+)")
+    g.add_argument(
+        "--multiplicity",
+        type=_int_arg("--multiplicity"),
+        help="2S+1; default: the lowest-energy candidate near equilibrium",
+    )
+
+
+def add_grid_options(p) -> None:
+    g = p.add_argument_group("distance grid (angstrom)")
+    g.add_argument("--from", dest="r_from", metavar="R", help="first distance, angstrom")
+    g.add_argument("--to", dest="r_to", metavar="R", help="last distance, angstrom")
+    g.add_argument("--points", metavar="N", help="number of distances (default 30)")
+
+
+def add_store_options(p) -> None:
+    g = p.add_argument_group("results store")
+    g.add_argument("--store", metavar="FILE", default="lcao-store.sqlite", help="SQLite results store (default ./lcao-store.sqlite)")
+    g.add_argument("--recompute", action="store_true", help="ignore stored points: compute afresh and replace them")
+
+
+def _int_arg(name):
+    def conv(text):
+        try:
+            return int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{name} must be a whole number, got {text!r}") from None
+
+    return conv
+
+
+def resolve_level(args):
+    from ..levels import parse_level
+
+    cart = None if args.d_shells is None else args.d_shells == "cartesian"
+    return parse_level(args.level, cart)
+
+
+def resolve_grid(args, species):
+    from ..errors import GridError
+    from ..scan.grid import default_grid, range_grid
+
+    given = [args.r_from is not None, args.r_to is not None]
+    if any(given) and not all(given):
+        raise GridError("give both --from and --to (or neither, for the default grid)")
+    if all(given):
+        return range_grid(args.r_from, args.r_to, args.points if args.points is not None else 30)
+    if args.points is not None:
+        try:
+            n = int(args.points)
+        except ValueError:
+            raise GridError(f"--points must be a whole number, got {args.points!r}") from None
+        return default_grid(*species.z, points=n)
+    return None
+
+
+def default_out_dir(species, level) -> str:
+    basis = "".join(c if c.isalnum() else "-" for c in level.basis).strip("-")
+    return os.path.join("lcao-results", f"{species.slug}_{level.method}_{basis}")
+
+
+class Progress:
+    """A tqdm bar on a terminal, nothing otherwise."""
+
+    def __init__(self, enabled: bool, label: str):
+        self.bar = None
+        if enabled and sys.stderr.isatty():
+            from tqdm import tqdm
+
+            self.bar = tqdm(desc=label, unit="pt", file=sys.stderr, leave=False)
+
+    def __call__(self, sweep, r_bohr):
+        if self.bar is not None:
+            self.bar.set_postfix_str(sweep, refresh=False)
+            self.bar.update(1)
+
+    def close(self):
+        if self.bar is not None:
+            self.bar.close()
+
+
+def open_store(args):
+    from ..store import Store
+
+    return Store(args.store, reuse=not args.recompute)
+
+
+def run(args) -> int:
+    from ..export import write_curve_outputs
+    from ..export.io import prepare_out_dir
+    from ..pipeline import curve, resolve_inputs, summary_lines
+    from ..species import parse_species
+
+    species = parse_species(args.species, args.charge)
+    level = resolve_level(args)
+    grid = resolve_grid(args, species)
+    species, level, grid = resolve_inputs(species, level, grid, args.multiplicity)
+    out = prepare_out_dir(args.out or default_out_dir(species, level))
+    progress = Progress(not args.quiet, f"{species.label} {level.text}")
+    try:
+        with open_store(args) as store:
+            result = curve(species, level, grid, multiplicity=args.multiplicity, store=store, progress=progress)
+    finally:
+        progress.close()
+    paths = write_curve_outputs(result, out)
+    for line in summary_lines(result):
+        print(line)
+    print(f"  wrote: {', '.join(paths)}")
+    n = len(result.points)
+    flagged = n - len(result.trusted_points)
+    if not result.trusted_points or flagged > MAX_FLAGGED_FRACTION * n:
+        print(f"lcao: {flagged} of {n} points are flagged (more than {MAX_FLAGGED_FRACTION:.0%})", file=sys.stderr)
+        return 1
+    return 0

@@ -1,0 +1,125 @@
+"""``curve.json`` and ``points.csv`` (schema documented in the README)."""
+
+from __future__ import annotations
+
+import csv
+import datetime as _dt
+import io
+import math
+import os
+
+from .io import atomic_write_bytes, json_text
+
+CURVE_SCHEMA_VERSION = 1
+
+
+def _versions() -> dict:
+    import pyscf
+
+    from .. import __version__
+
+    return {"lcao": __version__, "pyscf": pyscf.__version__}
+
+
+def curve_document(result) -> dict:
+    """The ``curve.json`` document of a :class:`lcao.pipeline.CurveResult`."""
+    from ..pipeline import CAUTION
+    from ..store import PROTOCOL_VERSION
+    from ..units import CODATA_SOURCE, bohr_to_angstrom
+
+    scan = result.scan
+    sp = result.species
+    inst = None
+    if scan.instability:
+        a, b = scan.instability
+        inst = {
+            "last_stable_r_angstrom": float(bohr_to_angstrom(a)) if math.isfinite(a) else None,
+            "first_unstable_r_angstrom": float(bohr_to_angstrom(b)),
+        }
+    doc = {
+        "schema_version": CURVE_SCHEMA_VERSION,
+        "kind": "lcao potential-energy curve",
+        "created": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
+        "versions": _versions(),
+        "protocol_version": PROTOCOL_VERSION,
+        "inputs": {
+            "species": sp.label,
+            "atoms": list(sp.atoms),
+            "charge": sp.charge,
+            "electrons": sp.n_electrons,
+            "multiplicity": result.multiplicity,
+            "multiplicity_source": result.multiplicity_source,
+            "level": result.level.as_dict(),
+            "reference": scan.reference,
+            "grid": result.grid.as_dict(),
+        },
+        "units": {"distance": "angstrom (r_angstrom) and bohr (r_bohr)", "energy": "hartree", "conversions": CODATA_SOURCE},
+        "multiplicity_candidates": [t.as_dict() for t in result.candidates],
+        "limit_energy_hartree": scan.limit.energy_hartree,
+        "separated_atoms": scan.limit.as_dict(),
+        "fragment_limit_hartree": scan.fragment_limit_hartree,
+        "instability": inst,
+        "points": [p.as_dict() for p in scan.points],
+        "branches": {name: [p.as_dict() for p in pts if p is not None] for name, pts in scan.branches.items()},
+        "sweeps": {name: [p.as_dict() for p in pts if p is not None] for name, pts in scan.sweeps.items()},
+        "counts": {
+            "points": len(scan.points),
+            "trusted": sum(1 for p in scan.points if p.trusted),
+            "computed_now": scan.computed,
+            "reused_from_store": scan.reused,
+        },
+        "notes": list(scan.notes) + list(result.warnings),
+        "caution": CAUTION,
+    }
+    fit = getattr(result, "fit", None)
+    if fit is not None:
+        doc["fit"] = fit.as_dict()
+    elif getattr(result, "fit_error", None):
+        doc["fit"] = None
+        doc["fit_error"] = result.fit_error
+    return doc
+
+
+POINT_COLUMNS = (
+    "r_angstrom",
+    "r_bohr",
+    "energy_hartree",
+    "converged",
+    "flag",
+    "branch",
+    "sweep",
+    "scf_cycles",
+    "s2",
+    "sweep_gap_hartree",
+    "rescue",
+    "stability",
+)
+
+
+def points_csv(result) -> str:
+    """One row per distance (the lowest trusted solution), the columns of :data:`POINT_COLUMNS`."""
+    buf = io.StringIO()
+    w = csv.DictWriter(buf, fieldnames=POINT_COLUMNS, lineterminator="\n")
+    w.writeheader()
+    for p in result.scan.points:
+        row = p.as_dict()
+        w.writerow({k: ("" if row[k] is None else row[k]) for k in POINT_COLUMNS})
+    return buf.getvalue()
+
+
+CURVE_WRITERS = {
+    "curve.json": lambda result: json_text(curve_document(result)).encode(),
+    "points.csv": lambda result: points_csv(result).encode(),
+}
+
+
+def write_curve_outputs(result, out_dir, writers=None) -> list[str]:
+    """Render every output first, then write each atomically; returns the paths written."""
+    writers = writers or CURVE_WRITERS
+    rendered = {name: fn(result) for name, fn in writers.items()}
+    paths = []
+    for name, data in rendered.items():
+        path = os.path.join(os.fspath(out_dir), name)
+        atomic_write_bytes(path, data)
+        paths.append(path)
+    return paths

@@ -1,0 +1,219 @@
+"""The curve pipeline without the CLI: species -> driver -> points -> (fit).
+
+``lcao.curve('NO', 'HF/6-31G')`` returns a :class:`CurveResult`.
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+from dataclasses import dataclass, field
+
+from .errors import InputError
+from .levels import Level, check_basis_covers, parse_level
+from .points import CurvePoint
+from .scan.grid import Grid, default_grid, expected_bond_length_bohr
+from .scan.protocol import ScanResult, choose_multiplicity, probe_multiplicities, run_protocol
+from .species import Species, parse_species
+
+log = logging.getLogger(__name__)
+
+CAUTION = (
+    "Hartree-Fock energies, and minimal-basis ones above all, are qualitative: dissociation energies at this"
+    " level can be badly wrong (often a large fraction too small, or no binding at all). Results that feed a"
+    " process, kinetics or safety model need validated data (evaluated tables, higher-level calculations)"
+    " and the judgement of licensed practice."
+)
+
+
+@dataclass(frozen=True)
+class CurveResult:
+    """A potential-energy curve of one species, multiplicity and level.
+
+    Attributes:
+        species, level, grid: the inputs.
+        multiplicity: the spin multiplicity used (given or chosen).
+        multiplicity_source: 'given' or 'lowest of candidates'.
+        candidates: energies of the candidate multiplicities tried (empty when given).
+        scan: the raw protocol outcome (points, branches, sweeps, limit).
+        fit: the curve fit (:class:`lcao.fit.CurveFit`) or None.
+        fit_error: why there is no fit, or None.
+    """
+
+    species: Species
+    level: Level
+    grid: Grid
+    multiplicity: int
+    multiplicity_source: str
+    candidates: tuple
+    scan: ScanResult
+    fit: object = None
+    fit_error: str | None = None
+    warnings: tuple[str, ...] = field(default=())
+
+    @property
+    def points(self) -> tuple[CurvePoint, ...]:
+        return self.scan.points
+
+    @property
+    def limit_energy_hartree(self) -> float:
+        return self.scan.limit.energy_hartree
+
+    @property
+    def trusted_points(self) -> tuple[CurvePoint, ...]:
+        return tuple(p for p in self.scan.points if p.trusted)
+
+    def lowest_point(self) -> CurvePoint | None:
+        good = self.trusted_points
+        return min(good, key=lambda p: p.energy_hartree) if good else None
+
+
+def resolve_inputs(species, level, grid=None, multiplicity=None, charge=None, points=None):
+    """Validate and convert the inputs of a curve (no computation).
+
+    Accepts text or objects for species and level; ``grid`` None means the
+    default grid from covalent radii (``points`` points).
+    """
+    sp = species if isinstance(species, Species) else parse_species(species, charge)
+    if isinstance(species, Species) and charge is not None and charge != sp.charge:
+        raise InputError(f"species {sp.label} has charge {sp.charge:+d} but charge {charge:+d} was given")
+    lv = level if isinstance(level, Level) else parse_level(level)
+    check_basis_covers(lv, sp.atoms)
+    if multiplicity is not None:
+        sp.check_multiplicity(multiplicity)
+        lv.resolved_reference(multiplicity)
+    gr = grid if grid is not None else default_grid(*sp.z, **({"points": points} if points else {}))
+    _check_electrons_fit(sp, lv)
+    return sp, lv, gr
+
+
+def _check_electrons_fit(sp: Species, lv: Level) -> None:
+    from .scan.scf import build_molecule
+
+    mol = build_molecule(sp.atoms, 2.0, lv, 0, sp.nuclear_charge % 2)
+    if sp.n_electrons > 2 * mol.nao:
+        raise InputError(
+            f"{sp.label} has {sp.n_electrons} electrons but {lv.basis} offers only {mol.nao} orbitals"
+            f" ({2 * mol.nao} electrons) on {sp.formula_neutral}"
+        )
+
+
+def curve(
+    species,
+    level,
+    grid: Grid | None = None,
+    *,
+    multiplicity: int | None = None,
+    charge: int | None = None,
+    points: int | None = None,
+    store=None,
+    fit: bool = True,
+    progress=None,
+) -> CurveResult:
+    """Compute a potential-energy curve with the state-following protocol.
+
+    Args:
+        species: text such as ``'NO+'`` or a :class:`Species`.
+        level: text such as ``'HF/6-31G'`` or a :class:`Level`.
+        grid: a :class:`Grid` (default: from covalent radii).
+        multiplicity: 2S+1; None chooses the lowest-energy candidate near equilibrium.
+        charge: net charge (alternative to a suffix in ``species``).
+        points: number of points of the default grid.
+        store: a :class:`lcao.store.Store`; None uses a throw-away in-memory store.
+        fit: fit the curve (local polynomial and Morse) when possible.
+        progress: optional callable(sweep, r_bohr) after each point.
+
+    Returns:
+        CurveResult
+
+    Examples:
+        >>> res = curve('H2', 'HF/STO-3G')     # doctest: +SKIP
+        >>> round(res.lowest_point().r_angstrom, 2)   # doctest: +SKIP
+        0.71
+    """
+    from .store import MemoryStore
+
+    sp, lv, gr = resolve_inputs(species, level, grid, multiplicity, charge, points)
+    own = store is None
+    st = MemoryStore() if own else store
+    try:
+        if multiplicity is None:
+            cands = sp.multiplicity_candidates()
+            trials = probe_multiplicities(sp, lv, cands, st, expected_bond_length_bohr(*sp.z), progress)
+            mult = choose_multiplicity(trials)
+            source = "lowest of candidates"
+        else:
+            trials = ()
+            mult = multiplicity
+            source = "given"
+        scan = run_protocol(sp, mult, lv, gr, st, progress)
+    finally:
+        if own:
+            st.close()
+    result = CurveResult(sp, lv, gr, mult, source, trials, scan)
+    if fit:
+        result = _with_fit(result)
+    return result
+
+
+def _with_fit(result: CurveResult) -> CurveResult:
+    try:
+        from .fit import fit_curve
+    except ImportError:  # the fit module is optional while it is being built
+        return result
+    from dataclasses import replace
+
+    from .errors import FitError
+
+    try:
+        f = fit_curve(result)
+    except FitError as exc:
+        return replace(result, fit_error=str(exc))
+    return replace(result, fit=f)
+
+
+def summary_lines(result: CurveResult) -> list[str]:
+    """Short human-readable summary (the CLI prints it)."""
+    from .units import HARTREE_EV
+
+    sp, lv = result.species, result.level
+    lines = [
+        f"{sp.label}  {lv.text}  ({lv.shells_text})  multiplicity {result.multiplicity}"
+        f" ({result.multiplicity_source})  reference {result.scan.reference}",
+    ]
+    if result.candidates:
+        lines.append(
+            "  multiplicities tried at {:.3f} A: ".format(result.candidates[0].as_dict()["r_angstrom"])
+            + ", ".join(
+                f"{t.multiplicity}: {t.energy_hartree:.6f} Eh" if math.isfinite(t.energy_hartree) else f"{t.multiplicity}: failed"
+                for t in result.candidates
+            )
+        )
+    n = len(result.points)
+    good = result.trusted_points
+    lines.append(
+        f"  {n} points from {result.grid.r_angstrom[0]:.3f} to {result.grid.r_angstrom[-1]:.3f} A:"
+        f" {len(good)} trusted, {n - len(good)} flagged; computed {result.scan.computed}, reused {result.scan.reused} from the store"
+    )
+    low = result.lowest_point()
+    if low is not None:
+        de = (result.limit_energy_hartree - low.energy_hartree) * HARTREE_EV
+        lines.append(f"  lowest point: {low.r_angstrom:.4f} A, {low.energy_hartree:.8f} Eh ({low.branch})")
+        lines.append(f"  separated atoms: {result.limit_energy_hartree:.8f} Eh (lowest point lies {de:.3f} eV below)")
+    if result.scan.instability:
+        a, b = result.scan.instability
+        lines.append(
+            f"  restricted solution turns unstable towards unrestricted between {_ang(a):.3f} and {_ang(b):.3f} A"
+        )
+    for note in result.scan.notes + result.warnings:
+        lines.append(f"  note: {note}")
+    if result.fit_error:
+        lines.append(f"  no fit: {result.fit_error}")
+    lines.append(f"  caution: {CAUTION}")
+    return lines
+
+
+def _ang(r_bohr: float) -> float:
+    from .units import bohr_to_angstrom
+
+    return float(bohr_to_angstrom(r_bohr)) if math.isfinite(r_bohr) else float("nan")

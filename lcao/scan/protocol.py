@@ -1,0 +1,363 @@
+"""The state-following scan protocol.
+
+For an unrestricted (or restricted open-shell) curve, two kinds of sweep:
+
+* ``from-equilibrium``: starts at the grid point nearest the expected bond
+  length from PySCF's default guess, goes outward to the last point and then
+  inward to the first, each point warm-started from the previous one;
+* ``from-atoms``: starts at the last point from a separated-fragment guess
+  (unrestricted atoms, one atom's spin flipped where the requested spin needs
+  it) and goes inward; for ions there is one such sweep per charge placement.
+
+Every point climbs the rescue ladder when it does not converge and is
+stability-followed until internally stable. The lower converged energy of the
+sweeps is kept at each distance, and the gap between them is recorded.
+
+A closed-shell singlet under ``HF`` follows the restricted solution with one
+warm-started sweep and checks at every point whether it is unstable towards an
+unrestricted one. From the first unstable point outward it also computes the
+broken-symmetry unrestricted branch (a sweep outward from the instability and
+one inward from the atoms). Both branches are kept and labelled.
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..atoms import AtomCache, SeparatedAtoms, fragment_guesses, separated_atoms
+from ..points import CurvePoint, outlier_reasons
+from ..store import StoredPoint
+from ..units import bohr_to_angstrom
+from .grid import Grid, expected_bond_length_bohr
+from .scf import build_molecule, solve, unstable_towards_uhf
+
+log = logging.getLogger(__name__)
+
+#: Unrestricted energies must lie this far below restricted ones to count as a separate branch.
+BRANCH_SPLIT_HARTREE = 1e-7
+
+
+@dataclass(frozen=True)
+class MultiplicityTrial:
+    """Energy of one candidate multiplicity at the probe distance."""
+
+    multiplicity: int
+    energy_hartree: float
+    converged: bool
+    reference: str
+    r_bohr: float
+
+    def as_dict(self) -> dict:
+        return {
+            "multiplicity": self.multiplicity,
+            "energy_hartree": self.energy_hartree if math.isfinite(self.energy_hartree) else None,
+            "converged": self.converged,
+            "reference": self.reference,
+            "r_angstrom": float(bohr_to_angstrom(self.r_bohr)),
+        }
+
+
+@dataclass(frozen=True)
+class ScanResult:
+    """Raw outcome of the protocol for one species, multiplicity and level.
+
+    Attributes:
+        points: per grid distance, the lowest trusted solution (or the best
+            untrusted one, flagged, where none is trusted).
+        branches: 'restricted' and/or 'unrestricted' -> points (None where the
+            branch was not computed).
+        sweeps: sweep name -> points of that sweep (None where not computed).
+        reference: the primary SCF reference ('RHF', 'UHF', 'ROHF').
+        instability: (last stable r, first unstable r) in bohr where a
+            restricted solution turns unstable towards an unrestricted one.
+        limit: the separated-atom limit at the same level.
+        fragment_limit_hartree: energy of the separated atoms in the spin
+            states a single determinant of this multiplicity reaches.
+        computed, reused: points computed now and taken from the store.
+        notes: messages worth showing to the user.
+    """
+
+    points: tuple[CurvePoint, ...]
+    branches: dict
+    sweeps: dict
+    reference: str
+    instability: tuple[float, float] | None
+    limit: SeparatedAtoms
+    fragment_limit_hartree: float | None
+    computed: int
+    reused: int
+    notes: tuple[str, ...] = field(default=())
+
+
+class _Runner:
+    """Computes or recalls points, one sweep at a time, committing each to the store."""
+
+    def __init__(self, species, multiplicity, level, store, progress=None):
+        self.species = species
+        self.multiplicity = multiplicity
+        self.spin = multiplicity - 1
+        self.level = level
+        self.store = store
+        self.progress = progress
+        self.computed = 0
+        self.reused = 0
+
+    def point(self, sweep: str, r: float, reference: str, dm0, check_uhf: bool = False) -> StoredPoint:
+        got = self.store.get_point(self.species, self.multiplicity, self.level, sweep, r)
+        if got is not None:
+            self.reused += 1
+            self._tick(sweep, r)
+            return got
+        mol = build_molecule(self.species.atoms, r, self.level, self.species.charge, self.spin)
+        if dm0 is not None and np.asarray(dm0).shape[-1] != mol.nao:
+            dm0 = None
+        if dm0 is not None and reference == "RHF" and np.asarray(dm0).ndim == 3:
+            dm0 = np.asarray(dm0).sum(axis=0)
+        sol = solve(mol, reference, dm0)
+        extra = {}
+        if check_uhf and sol.converged:
+            unstable, _ = unstable_towards_uhf(sol.scf)
+            extra["uhf_unstable"] = bool(unstable)
+        p = StoredPoint(r, sol.energy, sol.converged, sol.cycles, sol.s2, sol.rescue, sol.stability, sol.reason, extra, sol.dm)
+        self.store.put_point(self.species, self.multiplicity, self.level, sweep, p)
+        self.computed += 1
+        log.debug("%s %s r=%.4f bohr E=%.8f conv=%s cycles=%d", self.species.label, sweep, r, sol.energy, sol.converged, sol.cycles)
+        self._tick(sweep, r)
+        return p
+
+    def _tick(self, sweep, r):
+        if self.progress is not None:
+            self.progress(sweep, r)
+
+    def chain(self, sweep, r_all, indices, reference, dm_start, out: dict, check_uhf=False):
+        dm = dm_start
+        for i in indices:
+            p = self.point(sweep, r_all[i], reference, dm, check_uhf)
+            out[i] = p
+            if p.converged:
+                dm = p.dm
+        return out
+
+
+def instability_start(runner: _Runner, r: float, stored: StoredPoint):
+    """Unrestricted starting density along the RHF -> UHF instability at ``r``."""
+    mol = build_molecule(runner.species.atoms, r, runner.level, runner.species.charge, 0)
+    sol = solve(mol, "RHF", stored.dm, follow_stability=False)
+    unstable, dm = unstable_towards_uhf(sol.scf)
+    return dm if unstable else None
+
+
+def _as_curve_points(stored: dict, n: int, branch: str, sweep: str, reference: str):
+    out = []
+    for i in range(n):
+        p = stored.get(i)
+        if p is None:
+            out.append(None)
+            continue
+        flag = None if p.converged else (p.reason or "not converged")
+        out.append(
+            CurvePoint(p.r_bohr, p.energy, p.converged, flag, branch, sweep, p.cycles, p.s2, None, p.rescue, p.stability)
+        )
+    return out
+
+
+def _lowest(candidates, n):
+    """Per index, the lowest trusted point among several lists, with the spread between them."""
+    out = []
+    for i in range(n):
+        pts = [c[i] for c in candidates if c[i] is not None]
+        if not pts:
+            out.append(None)
+            continue
+        good = [p for p in pts if p.trusted]
+        gap = None
+        if len(good) >= 2:
+            es = [p.energy_hartree for p in good]
+            gap = float(max(es) - min(es))
+        if good:
+            best = min(good, key=lambda p: p.energy_hartree)
+        else:
+            best = pts[0]
+        out.append(_replace(best, sweep_gap_hartree=gap))
+    return out
+
+
+def _replace(p: CurvePoint, **kw) -> CurvePoint:
+    from dataclasses import replace
+
+    return replace(p, **kw)
+
+
+def _flag_outliers(points):
+    idx = [i for i, p in enumerate(points) if p is not None]
+    if len(idx) < 3:
+        return points
+    r = [points[i].r_bohr for i in idx]
+    e = [points[i].energy_hartree for i in idx]
+    ok = [points[i].trusted for i in idx]
+    reasons = outlier_reasons(r, e, ok)
+    out = list(points)
+    for j, i in enumerate(idx):
+        if reasons[j]:
+            out[i] = _replace(points[i], flag=reasons[j])
+    return out
+
+
+def probe_multiplicities(species, level, candidates, store, r_bohr, progress=None):
+    """Energy of each candidate multiplicity at ``r_bohr`` (lowest solution found)."""
+    trials = []
+    for mult in candidates:
+        runner = _Runner(species, mult, level, store, progress)
+        ref = level.resolved_reference(mult) if not (level.reference == "RHF" and mult != 1) else "ROHF"
+        if ref == "RHF":
+            p = runner.point("probe/restricted", r_bohr, "RHF", None, check_uhf=level.reference == "auto")
+            e, conv = p.energy, p.converged
+            if p.extra.get("uhf_unstable"):
+                dm = instability_start(runner, r_bohr, p)
+                q = runner.point("probe/unrestricted", r_bohr, "UHF", dm)
+                if q.converged and (not conv or q.energy < e):
+                    e, conv, ref = q.energy, True, "UHF"
+        else:
+            p = runner.point(f"probe/{ref.lower()}", r_bohr, ref, None)
+            e, conv = p.energy, p.converged
+        trials.append(MultiplicityTrial(mult, e, conv, ref, r_bohr))
+    return tuple(trials)
+
+
+def choose_multiplicity(trials) -> int:
+    good = [t for t in trials if t.converged and math.isfinite(t.energy_hartree)]
+    if not good:
+        from ..errors import CalculationError
+
+        raise CalculationError("no candidate multiplicity converged at the probe distance")
+    return min(good, key=lambda t: t.energy_hartree).multiplicity
+
+
+def run_protocol(species, multiplicity, level, grid: Grid, store, progress=None) -> ScanResult:
+    """Run the scan protocol (see the module docstring) and assemble the curve.
+
+    Args:
+        species, multiplicity, level, grid: what to compute.
+        store: a :class:`lcao.store.Store`; points found there are reused.
+        progress: optional callable(sweep, r_bohr) called after each point.
+    """
+    r_all = list(grid.r_bohr)
+    n = len(r_all)
+    reference = level.resolved_reference(multiplicity)
+    runner = _Runner(species, multiplicity, level, store, progress)
+    cache = AtomCache(level, store)
+    limit = separated_atoms(species, cache)
+    guesses = fragment_guesses(species, multiplicity - 1, cache)
+    frag_limit = min((g[2] for g in guesses), default=None)
+    re_guess = expected_bond_length_bohr(*species.z)
+    i0 = int(np.argmin([abs(x - re_guess) for x in r_all]))
+    notes = []
+    sweeps: dict[str, list] = {}
+    branches: dict[str, list] = {}
+    instability = None
+
+    def from_equilibrium(branch, ref, check_uhf=False):
+        name = f"{branch}/from-equilibrium"
+        got: dict = {}
+        runner.chain(name, r_all, range(i0, n), ref, None, got, check_uhf)
+        start = got[i0].dm if got[i0].converged else None
+        runner.chain(name, r_all, range(i0 - 1, -1, -1), ref, start, got, check_uhf)
+        sweeps[name] = _as_curve_points(got, n, branch, name, ref)
+        return got
+
+    if reference == "RHF":
+        auto = level.reference == "auto"
+        got = from_equilibrium("restricted", "RHF", check_uhf=True)
+        branches["restricted"] = _flag_outliers(sweeps["restricted/from-equilibrium"])
+        unstable = [i for i in range(n) if got[i].converged and got[i].extra.get("uhf_unstable")]
+        if unstable:
+            k = unstable[0]
+            instability = (r_all[k - 1] if k > 0 else float("nan"), r_all[k])
+            if auto:
+                uhf_sweeps = []
+                name = "unrestricted/from-instability"
+                dm = None
+                if store.get_point(species, multiplicity, level, name, r_all[k]) is None:
+                    dm = instability_start(runner, r_all[k], got[k])
+                ugot: dict = {}
+                runner.chain(name, r_all, range(k, n), "UHF", dm, ugot)
+                sweeps[name] = _as_curve_points(ugot, n, "unrestricted", name, "UHF")
+                uhf_sweeps.append(sweeps[name])
+                for label, dmf, _ in guesses:
+                    name = f"unrestricted/{label}"
+                    fgot: dict = {}
+                    runner.chain(name, r_all, range(n - 1, k - 1, -1), "UHF", dmf, fgot)
+                    sweeps[name] = _as_curve_points(fgot, n, "unrestricted", name, "UHF")
+                    uhf_sweeps.append(sweeps[name])
+                branches["unrestricted"] = _flag_outliers(_lowest(uhf_sweeps, n))
+            else:
+                notes.append(
+                    f"the RHF solution is unstable towards UHF beyond {bohr_to_angstrom(instability[1]):.3f} A;"
+                    " use HF or UHF for a curve that dissociates correctly"
+                )
+    else:
+        branch = "unrestricted" if reference == "UHF" else "restricted"
+        from_equilibrium(branch, reference)
+        lists = [sweeps[f"{branch}/from-equilibrium"]]
+        for label, dmf, _ in guesses:
+            name = f"{branch}/{label}"
+            fgot: dict = {}
+            dm_start = dmf
+            runner.chain(name, r_all, range(n - 1, -1, -1), reference, dm_start, fgot)
+            sweeps[name] = _as_curve_points(fgot, n, branch, name, reference)
+            lists.append(sweeps[name])
+        branches[branch] = _flag_outliers(_lowest(lists, n))
+
+    # lowest trusted solution per distance over the branches
+    final = []
+    for i in range(n):
+        cands = [b[i] for b in branches.values() if b[i] is not None]
+        good = [p for p in cands if p.trusted]
+        if good:
+            best = min(good, key=lambda p: (p.energy_hartree, p.branch != "restricted"))
+            # a restricted point within the split threshold of the unrestricted one is the same solution
+            rest = [p for p in good if p.branch == "restricted"]
+            if rest and best.branch != "restricted" and rest[0].energy_hartree - best.energy_hartree < BRANCH_SPLIT_HARTREE:
+                best = rest[0]
+            final.append(best)
+        else:
+            final.append(cands[0])
+    final = _flag_outliers(final)
+
+    # does the curve reach the separated atoms?
+    trusted = [p for p in final if p.trusted]
+    if trusted:
+        last = trusted[-1]
+        gap = last.energy_hartree - limit.energy_hartree
+        if gap > 1e-3:
+            notes.append(
+                f"at {last.r_angstrom:.2f} A the curve lies {gap:.4f} Eh above the separated atoms"
+                + (" (a restricted curve dissociates to the wrong limit)" if last.branch == "restricted" else "")
+            )
+    if frag_limit is not None and frag_limit > limit.energy_hartree + 1e-6:
+        notes.append(
+            f"a single determinant of multiplicity {multiplicity} separates into atoms in spin states"
+            f" {frag_limit - limit.energy_hartree:.4f} Eh above the ground-state atoms"
+        )
+    n_flag = sum(1 for p in final if not p.trusted)
+    if n_flag:
+        notes.append(f"{n_flag} of {n} points are flagged and kept out of every fit")
+    gaps = [p.sweep_gap_hartree for p in final if p.sweep_gap_hartree]
+    if gaps and max(gaps) > 1e-4:
+        notes.append(f"the sweeps disagree by up to {max(gaps):.4f} Eh; the lower is kept at each distance")
+    return ScanResult(
+        tuple(final),
+        {k: tuple(v) for k, v in branches.items()},
+        {k: tuple(v) for k, v in sweeps.items()},
+        reference,
+        instability,
+        limit,
+        frag_limit,
+        runner.computed,
+        runner.reused,
+        tuple(notes),
+    )

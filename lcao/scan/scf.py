@@ -1,0 +1,263 @@
+"""One SCF calculation: molecule set-up, the rescue ladder and stability following.
+
+Measured facts this module is built around (PySCF 2.14):
+
+* SCF under linear-molecule symmetry cannot break spin symmetry and Pi radicals
+  do not converge in the full linear groups, so every calculation here runs
+  without point-group symmetry; orbitals are labelled afterwards.
+* The checkpoint file costs about half of a cheap point: it is off.
+* ``converged`` is a flag to check, not an exception; a failed point is
+  returned with ``converged=False`` and a reason, never raised.
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+import warnings
+from dataclasses import dataclass, field
+
+import numpy as np
+
+log = logging.getLogger(__name__)
+
+CONV_TOL = 1e-9
+#: An internal instability must lower the energy by this much to be followed.
+STABILITY_GAIN = 1e-8
+MAX_STABILITY_STEPS = 5
+
+
+@dataclass(frozen=True)
+class Solution:
+    """Outcome of one SCF at one geometry.
+
+    Attributes:
+        energy: total energy, hartree (NaN when nothing converged).
+        converged: whether the SCF met its convergence criteria.
+        cycles: SCF iterations over every attempt.
+        s2: <S^2> for unrestricted references, else None.
+        dm: density matrix (alpha and beta stacked for open-shell references).
+        rescue: which rung of the ladder converged ('none', 'level-shift', 'second-order').
+        stability: 'stable', 'followed N' (N instabilities followed) or 'not checked'.
+        reason: why the point is untrustworthy, or None.
+    """
+
+    energy: float
+    converged: bool
+    cycles: int
+    s2: float | None
+    dm: np.ndarray = field(repr=False, compare=False)
+    rescue: str = "none"
+    stability: str = "not checked"
+    reason: str | None = None
+    scf: object = field(default=None, repr=False, compare=False)
+
+
+def build_molecule(symbols, r_bohr: float, level, charge: int, spin: int):
+    """A PySCF molecule on the z axis, no symmetry, no output.
+
+    Args:
+        symbols: the two element symbols.
+        r_bohr: distance, bohr.
+        level: :class:`lcao.levels.Level`.
+        charge: net charge; spin: 2S (number of alpha minus beta electrons).
+    """
+    from pyscf import gto
+
+    mol = gto.Mole()
+    mol.atom = [(symbols[0], (0.0, 0.0, 0.0)), (symbols[1], (0.0, 0.0, float(r_bohr)))]
+    mol.unit = "Bohr"
+    mol.basis = level.basis
+    mol.cart = level.cartesian
+    mol.charge = charge
+    mol.spin = spin
+    mol.symmetry = False
+    mol.verbose = 0
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        mol.build(dump_input=False, parse_arg=False)
+    return mol
+
+
+def build_atom(symbol: str, level, charge: int, spin: int):
+    """A single atom at the origin, no symmetry."""
+    from pyscf import gto
+
+    mol = gto.Mole()
+    mol.atom = [(symbol, (0.0, 0.0, 0.0))]
+    mol.unit = "Bohr"
+    mol.basis = level.basis
+    mol.cart = level.cartesian
+    mol.charge = charge
+    mol.spin = spin
+    mol.symmetry = False
+    mol.verbose = 0
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        mol.build(dump_input=False, parse_arg=False)
+    return mol
+
+
+def make_scf(mol, reference: str):
+    """An SCF object for ``reference`` ('RHF', 'UHF', 'ROHF') with the checkpoint file off."""
+    from pyscf import scf
+
+    cls = {"RHF": scf.RHF, "UHF": scf.UHF, "ROHF": scf.ROHF}[reference]
+    mf = cls(mol)
+    mf.chkfile = None
+    mf.verbose = 0
+    mf.conv_tol = CONV_TOL
+    mf.max_cycle = 80
+    return mf
+
+
+def _rotations(mf) -> int:
+    """Number of occupied-virtual rotations (0 means no stability analysis is possible)."""
+    occ = np.asarray(mf.mo_occ)
+    if occ.ndim == 1:
+        return int((occ > 0).sum() * (occ < 2).sum() - ((occ > 0) & (occ < 2)).sum())
+    return int(sum((o > 0).sum() * (o == 0).sum() for o in occ))
+
+
+def _kernel(mf, dm0):
+    mf.kernel(dm0=dm0)
+    cycles = getattr(mf, "cycles", None)
+    if cycles is None:
+        cycles = mf.max_cycle if not mf.converged else 0
+    return bool(mf.converged) and math.isfinite(mf.e_tot), int(cycles)
+
+
+def _ladder(mol, reference: str, dm0):
+    """Plain DIIS, then level shift with damping, then second-order SCF."""
+    mf = make_scf(mol, reference)
+    ok, cycles = _kernel(mf, dm0)
+    if ok:
+        return mf, cycles, "none"
+    log.debug("SCF did not converge in %d cycles; trying a level shift", cycles)
+    start = dm0
+    ms = make_scf(mol, reference)
+    ms.level_shift = 0.3
+    ms.damp = 0.3
+    ms.diis_start_cycle = 6
+    ms.max_cycle = 150
+    ok, c = _kernel(ms, start)
+    cycles += c
+    if ok:
+        mf = make_scf(mol, reference)
+        ok, c = _kernel(mf, ms.make_rdm1())
+        cycles += c
+        if ok:
+            return mf, cycles, "level-shift"
+    log.debug("level shift did not converge; trying second-order SCF")
+    mn = make_scf(mol, reference).newton()
+    mn.max_cycle = 60
+    ok, c = _kernel(mn, start)
+    cycles += c
+    return mn, cycles, "second-order" if ok else "failed"
+
+
+def _stability_step(mf, reference: str):
+    """One internal stability check; returns new orbitals or None when stable."""
+    if _rotations(mf) == 0:
+        return None
+    from pyscf.scf import stability
+
+    from pyscf.lib.exceptions import LinearDependencyError
+
+    fn = {"UHF": stability.uhf_internal, "ROHF": stability.rohf_internal, "RHF": stability.rhf_internal}[reference]
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            mo, stable = fn(mf, verbose=0, return_status=True)
+    except (LinearDependencyError, ZeroDivisionError) as exc:
+        # Davidson finds no trial vector (e.g. a single open shell with nothing to rotate)
+        log.debug("stability analysis skipped: %s", exc)
+        return None
+    return None if stable else mo
+
+
+def solve(mol, reference: str, dm0=None, *, follow_stability: bool = True) -> Solution:
+    """Converge one SCF from ``dm0`` and follow internal instabilities until stable.
+
+    Args:
+        mol: the PySCF molecule.
+        reference: 'RHF', 'UHF' or 'ROHF'.
+        dm0: starting density (None for PySCF's default guess).
+        follow_stability: run internal stability analysis and re-converge from
+            the lower-energy direction until the solution is stable.
+
+    Returns:
+        Solution (``converged=False`` with a reason on failure; never raises for
+        a convergence failure).
+    """
+    try:
+        mf, cycles, rescue = _ladder(mol, reference, dm0)
+    except (np.linalg.LinAlgError, FloatingPointError, ValueError) as exc:
+        n = mol.nao
+        empty = np.zeros((2, n, n)) if reference != "RHF" else np.zeros((n, n))
+        return Solution(float("nan"), False, 0, None, empty, "failed", "not checked", f"SCF raised {exc!r}")
+    if rescue == "failed":
+        return Solution(
+            float(mf.e_tot) if math.isfinite(mf.e_tot) else float("nan"),
+            False,
+            cycles,
+            _s2(mf, reference),
+            np.asarray(mf.make_rdm1()),
+            rescue,
+            "not checked",
+            "not converged after level shift and second-order SCF",
+            mf,
+        )
+    steps = 0
+    stab = "stable"
+    if follow_stability:
+        for _ in range(MAX_STABILITY_STEPS):
+            mo = _stability_step(mf, reference)
+            if mo is None:
+                break
+            dm = mf.make_rdm1(mo, mf.mo_occ)
+            trial, c, r = _ladder(mol, reference, dm)
+            cycles += c
+            if r == "failed" or trial.e_tot > mf.e_tot - STABILITY_GAIN:
+                break
+            mf, rescue, steps = trial, (rescue if r == "none" else r), steps + 1
+        else:
+            stab = "still unstable"
+        if stab == "stable" and steps:
+            stab = f"followed {steps}"
+    else:
+        stab = "not checked"
+    return Solution(
+        float(mf.e_tot), True, cycles, _s2(mf, reference), np.asarray(mf.make_rdm1()), rescue, stab, None, mf
+    )
+
+
+def _s2(mf, reference: str):
+    if reference != "UHF":
+        return None
+    try:
+        return float(mf.spin_square()[0])
+    except Exception:  # pragma: no cover - diagnostics only
+        return None
+
+
+def unstable_towards_uhf(mf):
+    """RHF -> UHF (triplet) instability check of a converged RHF solution.
+
+    Returns:
+        (unstable, dm): ``dm`` is an (alpha, beta) starting density along the
+        instability, or None when the RHF solution is stable.
+    """
+    if _rotations(mf) == 0:
+        return False, None
+    from pyscf.scf import stability
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        (mo_a, mo_b), stable = stability.rhf_external(mf, with_symmetry=False, verbose=0, return_status=True)
+    if stable:
+        return False, None
+    occ = np.asarray(mf.mo_occ) / 2.0
+    dma = (mo_a * occ) @ mo_a.T
+    dmb = (mo_b * occ) @ mo_b.T
+    return True, np.array([dma, dmb])
