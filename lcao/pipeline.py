@@ -38,6 +38,9 @@ class CurveResult:
         scan: the raw protocol outcome (points, branches, sweeps, limit).
         fit: the curve fit (:class:`lcao.fit.CurveFit`) or None.
         fit_error: why there is no fit, or None.
+        isotopes: the isotopes used for the fit (:class:`lcao.masses.Isotopes`).
+        computed, reused: points computed in this run and taken from the store
+            (the multiplicity probes included).
     """
 
     species: Species
@@ -49,6 +52,9 @@ class CurveResult:
     scan: ScanResult
     fit: object = None
     fit_error: str | None = None
+    isotopes: object = None
+    computed: int = 0
+    reused: int = 0
     warnings: tuple[str, ...] = field(default=())
 
     @property
@@ -108,6 +114,7 @@ def curve(
     points: int | None = None,
     store=None,
     fit: bool = True,
+    isotopes: str | None = None,
     progress=None,
 ) -> CurveResult:
     """Compute a potential-energy curve with the state-following protocol.
@@ -121,6 +128,7 @@ def curve(
         points: number of points of the default grid.
         store: a :class:`lcao.store.Store`; None uses a throw-away in-memory store.
         fit: fit the curve (local polynomial and Morse) when possible.
+        isotopes: mass numbers per atom for the fit, e.g. ``'13,16'`` (default most abundant).
         progress: optional callable(sweep, r_bohr) after each point.
 
     Returns:
@@ -133,35 +141,39 @@ def curve(
     """
     from .store import MemoryStore
 
+    from .masses import resolve_isotopes
+
     sp, lv, gr = resolve_inputs(species, level, grid, multiplicity, charge, points)
+    iso = resolve_isotopes(sp.atoms, isotopes)
     own = store is None
     st = MemoryStore() if own else store
     try:
         if multiplicity is None:
             cands = sp.multiplicity_candidates()
-            trials = probe_multiplicities(sp, lv, cands, st, expected_bond_length_bohr(*sp.z), progress)
+            trials, p_comp, p_reuse = probe_multiplicities(sp, lv, cands, st, expected_bond_length_bohr(*sp.z), progress)
             mult = choose_multiplicity(trials)
             source = "lowest of candidates"
         else:
-            trials = ()
+            trials, p_comp, p_reuse = (), 0, 0
             mult = multiplicity
             source = "given"
         scan = run_protocol(sp, mult, lv, gr, st, progress)
     finally:
         if own:
             st.close()
-    result = CurveResult(sp, lv, gr, mult, source, trials, scan)
+    result = CurveResult(
+        sp, lv, gr, mult, source, trials, scan, isotopes=iso,
+        computed=scan.computed + p_comp, reused=scan.reused + p_reuse,
+    )
     if fit:
         result = _with_fit(result)
     return result
 
 
 def _with_fit(result: CurveResult) -> CurveResult:
-    try:
-        from .fit import fit_curve
-    except ImportError:  # the fit module is optional while it is being built
-        return result
     from dataclasses import replace
+
+    from .fit import fit_curve
 
     from .errors import FitError
 
@@ -193,7 +205,7 @@ def summary_lines(result: CurveResult) -> list[str]:
     good = result.trusted_points
     lines.append(
         f"  {n} points from {result.grid.r_angstrom[0]:.3f} to {result.grid.r_angstrom[-1]:.3f} A:"
-        f" {len(good)} trusted, {n - len(good)} flagged; computed {result.scan.computed}, reused {result.scan.reused} from the store"
+        f" {len(good)} trusted, {n - len(good)} flagged; computed {result.computed}, reused {result.reused} from the store"
     )
     low = result.lowest_point()
     if low is not None:
@@ -205,6 +217,8 @@ def summary_lines(result: CurveResult) -> list[str]:
         lines.append(
             f"  restricted solution turns unstable towards unrestricted between {_ang(a):.3f} and {_ang(b):.3f} A"
         )
+    if result.fit is not None:
+        lines.extend(fit_lines(result))
     for note in result.scan.notes + result.warnings:
         lines.append(f"  note: {note}")
     if result.fit_error:
@@ -217,3 +231,52 @@ def _ang(r_bohr: float) -> float:
     from .units import bohr_to_angstrom
 
     return float(bohr_to_angstrom(r_bohr)) if math.isfinite(r_bohr) else float("nan")
+
+
+def fit_lines(result: CurveResult) -> list[str]:
+    """Fitted constants with uncertainties and units, and the handbook comparison where known."""
+    from .data import handbook_row
+
+    d = result.fit.as_dict()
+    ref = handbook_row(result.species.label) if result.multiplicity == _handbook_mult(result) else None
+
+    def cmp(key, value, fmt):
+        if ref is None or ref.get(key) is None or value is None:
+            return ""
+        return f"  (handbook {ref[key]:{fmt}}, error {value - ref[key]:+{fmt}})"
+
+    iso = d["reduced_mass"]
+    lines = [
+        f"  fit of the {d['well_branch']} well ({d['local_points']} points about the minimum; {iso['isotopes']},"
+        f" reduced mass {iso['reduced_mass_dalton']:.6f} Da):",
+        f"    r_e        {d['re_angstrom']:.5f} +- {d['re_uncertainty_angstrom']:.5f} A" + cmp("re_angstrom", d["re_angstrom"], ".4f"),
+        f"    omega_e    {d['we_cm1']:.1f} cm-1" + cmp("we_cm1", d["we_cm1"], ".1f"),
+        f"    omega_e x_e {d['wexe_cm1']:.2f} cm-1" + cmp("wexe_cm1", d["wexe_cm1"], ".2f"),
+        f"    B_e        {d['be_cm1']:.4f} cm-1   alpha_e {d['alpha_e_cm1']:.5f} cm-1" + cmp("be_cm1", d["be_cm1"], ".4f"),
+    ]
+    if not d["bound"]:
+        lines.append(f"    not bound at this level: the minimum lies {d['minimum_above_limit_ev']:.3f} eV above the separated atoms")
+        return lines
+    lines.append(f"    D_e (separated atoms, same level) {d['de_ev']:.3f} eV;  D_0 = D_e - ZPE {d['d0_ev']:.3f} eV" + cmp("d0_ev", d["d0_ev"], ".3f"))
+    if d["zpe_cm1"] is not None:
+        vl = d["vibrational_levels"]
+        lines.append(f"    ZPE {d['zpe_cm1']:.1f} cm-1; {vl['n_bound'] if vl else '?'} bound vibrational levels")
+    m = d["morse"]
+    if m is not None:
+        lines.append(
+            f"    Morse (model): D_e {m['de_ev']:.3f} +- {m['de_uncertainty_ev']:.3f} eV, a {m['a_per_angstrom']:.4f}"
+            f" +- {m['a_uncertainty_per_angstrom']:.4f} 1/A, r_e {m['re_angstrom']:.4f} A;"
+            f" window {m['window_angstrom'][0]:.3f}-{m['window_angstrom'][1]:.3f} A ({m['window_points']} points, ends at {m['window_end']});"
+            f" residual RMS {m['rms_residual_hartree']:.1e} Eh"
+        )
+    elif d["morse_error"]:
+        lines.append(f"    no Morse fit: {d['morse_error']}")
+    lines.append(f"    D_e caution: {d['caution']}")
+    return lines
+
+
+def _handbook_mult(result: CurveResult):
+    from .data import handbook_row
+
+    row = handbook_row(result.species.label)
+    return None if row is None else row.get("multiplicity")

@@ -23,6 +23,8 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
     add_grid_options(p)
     add_store_options(p)
     p.add_argument("--out", metavar="DIR", help="output folder (default: lcao-results/SPECIES_METHOD_BASIS)")
+    p.add_argument("--isotopes", metavar="A,B", help="mass numbers for the fit, e.g. 13,16 or 2H,1H (default most abundant)")
+    p.add_argument("--no-plots", action="store_true", help="skip curve.png and curve.svg")
 
 
 def add_level_options(p) -> None:
@@ -134,10 +136,17 @@ def run(args) -> int:
     progress = Progress(not args.quiet, f"{species.label} {level.text}")
     try:
         with open_store(args) as store:
-            result = curve(species, level, grid, multiplicity=args.multiplicity, store=store, progress=progress)
+            result = curve(
+                species, level, grid, multiplicity=args.multiplicity, store=store, isotopes=args.isotopes, progress=progress
+            )
     finally:
         progress.close()
     paths = write_curve_outputs(result, out)
+    if not args.no_plots:
+        from ..plots import CURVE_FIGURES, save_figure
+
+        for stem, fn in CURVE_FIGURES.items():
+            paths += save_figure(fn(result), os.path.join(out, stem))
     for line in summary_lines(result):
         print(line)
     print(f"  wrote: {', '.join(paths)}")

@@ -65,8 +65,8 @@ def curve_document(result) -> dict:
         "counts": {
             "points": len(scan.points),
             "trusted": sum(1 for p in scan.points if p.trusted),
-            "computed_now": scan.computed,
-            "reused_from_store": scan.reused,
+            "computed_now": result.computed,
+            "reused_from_store": result.reused,
         },
         "notes": list(scan.notes) + list(result.warnings),
         "caution": CAUTION,

@@ -111,14 +111,16 @@ def expected_bond_length_bohr(z_a: int, z_b: int) -> float:
 
 
 def default_grid(z_a: int, z_b: int, points: int = DEFAULT_POINTS) -> Grid:
-    """Grid from covalent radii: 60 % of the points from 0.75 to 1.5 times the
-    expected bond length, the rest spaced geometrically out to 3 times it
-    (at least 2.5 times, as asked of a dissociation curve)."""
+    """Grid from covalent radii: 60 % of the points from 0.62 to 1.5 times the
+    expected bond length (the sum of single-bond covalent radii, which
+    overestimates multiple bonds: N2 1.42 A against 1.10 A), the rest spaced
+    geometrically out to 3 times it (at least 2.5 times, as a dissociation
+    curve needs)."""
     if points < 6:
         raise GridError(f"the default grid needs at least 6 points, got {points}")
     re_ = expected_bond_length_bohr(z_a, z_b)
     n_well = int(round(0.6 * points))
-    well = np.linspace(0.75 * re_, 1.5 * re_, n_well)
+    well = np.linspace(0.62 * re_, 1.5 * re_, n_well)
     n_tail = points - n_well
     ratio = (3.0 / 1.5) ** (1.0 / n_tail)
     tail = 1.5 * re_ * ratio ** np.arange(1, n_tail + 1)

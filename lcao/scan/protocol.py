@@ -33,7 +33,7 @@ from ..points import CurvePoint, outlier_reasons
 from ..store import StoredPoint
 from ..units import bohr_to_angstrom
 from .grid import Grid, expected_bond_length_bohr
-from .scf import build_molecule, solve, unstable_towards_uhf
+from .scf import build_molecule, solve, solver_for, unstable_towards_uhf
 
 log = logging.getLogger(__name__)
 
@@ -117,7 +117,7 @@ class _Runner:
             dm0 = None
         if dm0 is not None and reference == "RHF" and np.asarray(dm0).ndim == 3:
             dm0 = np.asarray(dm0).sum(axis=0)
-        sol = solve(mol, reference, dm0)
+        sol = solver_for(self.level)(mol, reference, dm0)
         extra = {}
         if check_uhf and sol.converged:
             unstable, _ = unstable_towards_uhf(sol.scf)
@@ -208,8 +208,13 @@ def _flag_outliers(points):
 
 
 def probe_multiplicities(species, level, candidates, store, r_bohr, progress=None):
-    """Energy of each candidate multiplicity at ``r_bohr`` (lowest solution found)."""
+    """Energy of each candidate multiplicity at ``r_bohr`` (lowest solution found).
+
+    Returns:
+        (trials, computed, reused): the trials and the points computed now or reused.
+    """
     trials = []
+    computed = reused = 0
     for mult in candidates:
         runner = _Runner(species, mult, level, store, progress)
         ref = level.resolved_reference(mult) if not (level.reference == "RHF" and mult != 1) else "ROHF"
@@ -225,7 +230,9 @@ def probe_multiplicities(species, level, candidates, store, r_bohr, progress=Non
             p = runner.point(f"probe/{ref.lower()}", r_bohr, ref, None)
             e, conv = p.energy, p.converged
         trials.append(MultiplicityTrial(mult, e, conv, ref, r_bohr))
-    return tuple(trials)
+        computed += runner.computed
+        reused += runner.reused
+    return tuple(trials), computed, reused
 
 
 def choose_multiplicity(trials) -> int:

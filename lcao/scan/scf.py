@@ -261,3 +261,17 @@ def unstable_towards_uhf(mf):
     dma = (mo_a * occ) @ mo_a.T
     dmb = (mo_b * occ) @ mo_b.T
     return True, np.array([dma, dmb])
+
+
+#: method family (see :data:`lcao.levels.METHODS`) -> solver(mol, reference, dm0) -> Solution.
+#: A correlated method adds a family here whose solver runs the SCF with
+#: :func:`solve` and adds its correlation energy to ``energy``.
+SOLVERS = {"scf": solve}
+
+
+def solver_for(level):
+    """The solver of a level's method family."""
+    try:
+        return SOLVERS[level.family]
+    except KeyError:  # pragma: no cover - guarded by METHODS
+        raise NotImplementedError(f"no solver for method family {level.family!r}") from None

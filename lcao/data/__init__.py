@@ -1,0 +1,34 @@
+"""Reference tables shipped with the package, each row with its source.
+
+``diatomic_constants.csv``: experimental ground-state constants (Huber &
+Herzberg, Constants of Diatomic Molecules, 1979; NIST Chemistry WebBook).
+The ``checked`` column says how far each row has been checked; most values are
+quoted from memory and have not been checked against the printed table.
+"""
+
+from __future__ import annotations
+
+import csv
+from functools import lru_cache
+from importlib import resources
+
+NUMERIC = ("multiplicity", "re_angstrom", "we_cm1", "wexe_cm1", "be_cm1", "d0_ev")
+
+
+@lru_cache(maxsize=1)
+def handbook_table() -> dict[str, dict]:
+    """Species label -> row (numbers as float, multiplicity as int, empty as None)."""
+    text = resources.files(__package__).joinpath("diatomic_constants.csv").read_text(encoding="utf-8")
+    out = {}
+    for row in csv.DictReader(text.splitlines()):
+        rec = dict(row)
+        for key in NUMERIC:
+            v = rec.get(key, "")
+            rec[key] = None if v in ("", None) else (int(v) if key == "multiplicity" else float(v))
+        out[rec["species"]] = rec
+    return out
+
+
+def handbook_row(label: str) -> dict | None:
+    """The handbook row of a species label (``'N2'``, ``'NO+'``), or None."""
+    return handbook_table().get(label)

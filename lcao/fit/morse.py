@@ -1,0 +1,116 @@
+"""Morse fit: V(r) = E_min + D_e (1 - exp(-a (r - r_e)))^2 (Morse, Phys. Rev. 34 (1929) 57).
+
+Fitted with ``scipy.optimize.least_squares`` from starting guesses taken from
+a rough quadratic fit; standard errors from the covariance (J^T J)^-1 s^2.
+Atomic units throughout.
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..errors import FitError
+
+
+def morse(r, e_min, de, a, re):
+    """The Morse potential (same units as the arguments)."""
+    return e_min + de * (1.0 - np.exp(-a * (np.asarray(r) - re))) ** 2
+
+
+def morse_levels(we: float, wexe: float, vmax: int) -> np.ndarray:
+    """Analytic Morse term values G(v) = we (v+1/2) - wexe (v+1/2)^2, v = 0..vmax (Morse 1929)."""
+    v = np.arange(vmax + 1) + 0.5
+    return we * v - wexe * v**2
+
+
+@dataclass(frozen=True)
+class MorseFit:
+    """Morse parameters with standard errors (atomic units).
+
+    Attributes:
+        e_min, de, a, re: parameters (hartree, hartree, 1/bohr, bohr).
+        e_min_err, de_err, a_err, re_err: standard errors from the covariance.
+        rms, max_abs: residual RMS and largest absolute residual, hartree.
+        n_points: points in the window; window: (first, last) distance, bohr.
+        window_reason: why the window ends where it does.
+    """
+
+    e_min: float
+    de: float
+    a: float
+    re: float
+    e_min_err: float
+    de_err: float
+    a_err: float
+    re_err: float
+    rms: float
+    max_abs: float
+    n_points: int
+    window: tuple[float, float]
+    window_reason: str
+
+
+def fit_morse(r, e, window_reason: str = "given") -> MorseFit:
+    """Least-squares Morse fit to the points given (the caller picks the window).
+
+    Raises:
+        FitError: fewer than 5 points, or the optimisation fails.
+    Warns:
+        UserWarning: when the minimum lies at the edge of the points or the
+            covariance is singular.
+    """
+    r = np.asarray(r, float)
+    e = np.asarray(e, float)
+    n = len(r)
+    if n < 5:
+        raise FitError(f"a Morse fit needs at least 5 points in its window, got {n}")
+    i = int(np.argmin(e))
+    if i == 0 or i == n - 1:
+        warnings.warn("the lowest point lies at the edge of the Morse window; the fit extrapolates", stacklevel=2)
+    # rough quadratic about the lowest point for the starting guesses
+    sel = slice(max(0, i - 2), min(n, i + 3))
+    c = np.polyfit(r[sel] - r[i], e[sel], 2) if len(r[sel]) >= 3 else np.array([0.1, 0.0, e[i]])
+    k0 = max(2.0 * c[0], 1e-3)
+    re0 = r[i] - c[1] / (2.0 * c[0]) if c[0] > 0 else r[i]
+    de0 = max(float(e.max() - e.min()), 1e-3) * 1.5
+    a0 = np.sqrt(k0 / (2.0 * de0))
+    scale = max(float(np.ptp(e)), 1e-8)
+
+    def resid(p):
+        return (morse(r, *p) - e) / scale
+
+    from scipy.optimize import least_squares
+
+    x0 = np.array([float(e.min()), de0, a0, re0])
+    lower = [-np.inf, 1e-8, 1e-4, r.min() * 0.5]
+    upper = [np.inf, np.inf, 50.0, r.max() * 2.0]
+    x0 = np.clip(x0, np.array(lower) + 1e-12, np.array(upper) - 1e-12)
+    sol = least_squares(resid, x0, bounds=(lower, upper), x_scale="jac", xtol=1e-15, ftol=1e-15, gtol=1e-15, max_nfev=20000)
+    if not sol.success:
+        raise FitError(f"the Morse fit did not converge: {sol.message}")
+    res = (morse(r, *sol.x) - e)
+    dof = max(n - 4, 1)
+    s2 = float(np.sum(res**2) / dof)
+    J = sol.jac * scale  # d(model)/dp in hartree
+    jtj = J.T @ J
+    try:
+        cond = np.linalg.cond(jtj)
+        if not np.isfinite(cond) or cond > 1e14:
+            raise np.linalg.LinAlgError
+        cov = np.linalg.inv(jtj) * s2
+        errs = np.sqrt(np.clip(np.diag(cov), 0.0, None))
+    except np.linalg.LinAlgError:
+        warnings.warn("the Morse covariance is singular; standard errors are not available", stacklevel=2)
+        errs = np.full(4, np.nan)
+    return MorseFit(
+        *map(float, sol.x),
+        *map(float, errs),
+        rms=float(np.sqrt(np.mean(res**2))),
+        max_abs=float(np.max(np.abs(res))),
+        n_points=n,
+        window=(float(r[0]), float(r[-1])),
+        window_reason=window_reason,
+    )

@@ -1,0 +1,14 @@
+import os
+
+os.environ.setdefault("MPLBACKEND", "Agg")
+os.environ.setdefault("OMP_NUM_THREADS", "1")
+
+import pytest  # noqa: E402
+
+
+@pytest.fixture
+def store(tmp_path):
+    from lcao.store import Store
+
+    with Store(tmp_path / "store.sqlite") as st:
+        yield st

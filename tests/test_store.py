@@ -1,0 +1,110 @@
+"""The results store: resume after SIGKILL, reuse, schema checks."""
+
+import json
+import os
+import signal
+import sqlite3
+import subprocess
+import sys
+import time
+
+import pytest
+
+from lcao.errors import StoreError
+from lcao.store import SCHEMA_VERSION, Store
+
+ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+
+
+def run_cli(args, env_extra=None, **kw):
+    env = dict(os.environ, OMP_NUM_THREADS="1", PYTHONPATH=ROOT + os.pathsep + os.environ.get("PYTHONPATH", ""))
+    env.update(env_extra or {})
+    return subprocess.Popen([sys.executable, "-m", "lcao", *args], env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE, **kw)
+
+
+def count_rows(path):
+    if not os.path.exists(path):
+        return 0
+    try:
+        con = sqlite3.connect(f"file:{path}?mode=ro", uri=True, timeout=5)
+        try:
+            return con.execute("SELECT COUNT(*) FROM points").fetchone()[0]
+        finally:
+            con.close()
+    except sqlite3.OperationalError:
+        return 0
+
+
+CURVE = ["curve", "NO", "--level", "HF/6-31G", "--from", "0.9", "--to", "3.5", "--points", "24", "-q"]
+
+
+def test_sigkill_mid_scan_then_rerun_gives_identical_results(tmp_path):
+    killed_store = str(tmp_path / "killed.sqlite")
+    clean_store = str(tmp_path / "clean.sqlite")
+    # reference: an uninterrupted run
+    ref = run_cli(CURVE + ["--store", clean_store, "--out", str(tmp_path / "ref")])
+    assert ref.wait(timeout=300) == 0, ref.stderr.read().decode()
+    total = count_rows(clean_store)
+    # a run killed once part of the points are stored
+    proc = run_cli(CURVE + ["--store", killed_store, "--out", str(tmp_path / "killed")])
+    deadline = time.time() + 240
+    while count_rows(killed_store) < total // 3 and time.time() < deadline and proc.poll() is None:
+        time.sleep(0.05)
+    assert proc.poll() is None, "the run finished before it could be killed"
+    os.kill(proc.pid, signal.SIGKILL)
+    proc.wait()
+    stored = count_rows(killed_store)
+    assert 0 < stored < total
+    # nothing half-written: the output folder has no curve.json yet
+    assert not os.path.exists(tmp_path / "killed" / "curve.json")
+    again = run_cli(CURVE + ["--store", killed_store, "--out", str(tmp_path / "killed")])
+    assert again.wait(timeout=300) == 0, again.stderr.read().decode()
+    doc = json.loads((tmp_path / "killed" / "curve.json").read_text())
+    ref_doc = json.loads((tmp_path / "ref" / "curve.json").read_text())
+    assert doc["counts"]["reused_from_store"] >= stored
+    assert doc["counts"]["computed_now"] == total - stored
+    assert count_rows(killed_store) == total
+    for a, b in zip(doc["points"], ref_doc["points"]):
+        assert a["r_bohr"] == b["r_bohr"]
+        assert a["energy_hartree"] == pytest.approx(b["energy_hartree"], abs=1e-10)
+        assert a["branch"] == b["branch"]
+
+
+def test_rerun_reuses_everything_and_recompute_replaces(tmp_path):
+    import lcao
+    from lcao.scan.grid import range_grid
+
+    grid = range_grid(0.6, 2.0, 8)
+    with Store(tmp_path / "s.sqlite") as st:
+        first = lcao.curve("H2", "HF/STO-3G", grid, store=st, fit=False)
+        second = lcao.curve("H2", "HF/STO-3G", grid, store=st, fit=False)
+    assert first.scan.computed > 0 and second.scan.computed == 0
+    assert [p.energy_hartree for p in first.points] == [p.energy_hartree for p in second.points]
+    with Store(tmp_path / "s.sqlite", reuse=False) as st:
+        third = lcao.curve("H2", "HF/STO-3G", grid, store=st, fit=False)
+    assert third.scan.reused == 0 and third.scan.computed == first.scan.computed
+
+
+def test_not_a_store(tmp_path):
+    bogus = tmp_path / "notes.sqlite"
+    bogus.write_text("these are not the droids")
+    with pytest.raises(StoreError, match="not an lcao store"):
+        Store(bogus)
+    other = tmp_path / "other.sqlite"
+    con = sqlite3.connect(other)
+    con.execute("CREATE TABLE t (x)")
+    con.commit()
+    con.close()
+    with pytest.raises(StoreError, match="not an lcao store"):
+        Store(other)
+
+
+def test_store_from_a_newer_schema_is_refused(tmp_path):
+    path = tmp_path / "new.sqlite"
+    Store(path).close()
+    con = sqlite3.connect(path)
+    con.execute("UPDATE meta SET value=? WHERE key='schema_version'", (str(SCHEMA_VERSION + 1),))
+    con.commit()
+    con.close()
+    with pytest.raises(StoreError, match="newer"):
+        Store(path)
