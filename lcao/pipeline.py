@@ -41,6 +41,9 @@ class CurveResult:
         isotopes: the isotopes used for the fit (:class:`lcao.masses.Isotopes`).
         computed, reused: points computed in this run and taken from the store
             (the multiplicity probes included).
+        along: per point, a dict with bond orders, unpaired electrons and the
+            frontier orbitals of the lowest trusted solution (None where the
+            point is flagged), or empty when not asked for.
     """
 
     species: Species
@@ -55,6 +58,7 @@ class CurveResult:
     isotopes: object = None
     computed: int = 0
     reused: int = 0
+    along: tuple = ()
     warnings: tuple[str, ...] = field(default=())
 
     @property
@@ -115,6 +119,7 @@ def curve(
     store=None,
     fit: bool = True,
     isotopes: str | None = None,
+    analyse_points: bool = True,
     progress=None,
 ) -> CurveResult:
     """Compute a potential-energy curve with the state-following protocol.
@@ -129,6 +134,7 @@ def curve(
         store: a :class:`lcao.store.Store`; None uses a throw-away in-memory store.
         fit: fit the curve (local polynomial and Morse) when possible.
         isotopes: mass numbers per atom for the fit, e.g. ``'13,16'`` (default most abundant).
+        analyse_points: bond orders and frontier orbitals at every trusted point.
         progress: optional callable(sweep, r_bohr) after each point.
 
     Returns:
@@ -158,16 +164,196 @@ def curve(
             mult = multiplicity
             source = "given"
         scan = run_protocol(sp, mult, lv, gr, st, progress)
+        along = point_summaries(sp, mult, lv, scan, st) if analyse_points else ()
     finally:
         if own:
             st.close()
     result = CurveResult(
         sp, lv, gr, mult, source, trials, scan, isotopes=iso,
-        computed=scan.computed + p_comp, reused=scan.reused + p_reuse,
+        computed=scan.computed + p_comp, reused=scan.reused + p_reuse, along=along,
     )
     if fit:
         result = _with_fit(result)
     return result
+
+
+def point_reference(scan, point) -> str:
+    """SCF reference of a curve point's branch."""
+    if point.branch == "unrestricted":
+        return "UHF"
+    return "ROHF" if scan.reference == "ROHF" else "RHF"
+
+
+def stored_density(store, species, multiplicity, level, point):
+    got = store.get_point(species, multiplicity, level, point.sweep, point.r_bohr)
+    if got is None:  # pragma: no cover - every point of a scan is stored
+        from .errors import StoreError
+
+        raise StoreError(f"point {point.r_angstrom:.4f} A of sweep {point.sweep} is not in the store")
+    return got.dm
+
+
+def point_summaries(species, multiplicity, level, scan, store) -> tuple:
+    """Bond orders and frontier orbitals of every trusted point (None for flagged ones)."""
+    from .analysis.orbitals import analyse_stored
+    from .errors import CalculationError
+
+    out = []
+    for p in scan.points:
+        if not p.trusted:
+            out.append(None)
+            continue
+        try:
+            a = analyse_stored(species, multiplicity, level, point_reference(scan, p), p.r_bohr,
+                               stored_density(store, species, multiplicity, level, p))
+        except CalculationError as exc:
+            log.warning("no orbital analysis at %.4f A: %s", p.r_angstrom, exc)
+            out.append(None)
+            continue
+        out.append({
+            "r_angstrom": p.r_angstrom,
+            "branch": p.branch,
+            "bond_orders": a.bond_orders(),
+            "unpaired_electrons": a.unpaired_electrons,
+            "s2": a.s2,
+            "frontier": a.frontier(),
+            "overlaps": {k: v for k, v in a.overlaps.items() if k != "functions"},
+        })
+    return tuple(out)
+
+
+@dataclass(frozen=True)
+class OrbitalsResult:
+    """Orbital analysis of one point.
+
+    Attributes:
+        species, level, multiplicity: as computed; candidates: multiplicities tried.
+        point: the analysed curve point (distance, energy, branch, sweep).
+        analysis: :class:`lcao.analysis.OrbitalAnalysis`.
+        branch_choice: how the branch was chosen.
+        other_branches: {branch: energy_hartree} of the other solutions at this distance.
+        atom_levels: per atom, a list of (shell label, spin, energy, occupation).
+        curve: the curve the equilibrium distance came from (``at_minimum``), else None.
+    """
+
+    species: Species
+    level: Level
+    multiplicity: int
+    candidates: tuple
+    point: CurvePoint
+    analysis: object
+    branch_choice: str
+    other_branches: dict
+    atom_levels: tuple
+    limit_energy_hartree: float
+    curve: CurveResult | None = None
+
+
+def orbitals(
+    species,
+    level,
+    r_angstrom: float | None = None,
+    *,
+    at_minimum: bool = False,
+    branch: str = "well",
+    multiplicity: int | None = None,
+    charge: int | None = None,
+    grid: Grid | None = None,
+    store=None,
+) -> OrbitalsResult:
+    """Orbital characters, bond orders and spin at one distance.
+
+    Args:
+        species, level: as for :func:`curve`.
+        r_angstrom: the distance; or ``at_minimum=True`` for the fitted r_e of a
+            curve over ``grid`` (default grid when None).
+        branch: 'well' (the restricted solution for a closed-shell singlet under
+            HF, as the curve fit uses it; otherwise the lowest), 'lowest',
+            'restricted' or 'unrestricted'.
+    """
+    from .errors import FitError
+    from .store import MemoryStore
+    from .units import angstrom_to_bohr
+
+    if branch not in ("well", "lowest", "restricted", "unrestricted"):
+        raise InputError(f"branch {branch!r} is not one of well, lowest, restricted, unrestricted")
+    if (r_angstrom is None) == (not at_minimum):
+        raise InputError("give a distance or ask for the curve minimum, not both or neither")
+    sp, lv, _ = resolve_inputs(species, level, grid or Grid((2.0,)), multiplicity, charge)
+    own = store is None
+    st = MemoryStore() if own else store
+    try:
+        base = None
+        if at_minimum:
+            base = curve(sp, lv, grid, multiplicity=multiplicity, store=st, analyse_points=False)
+            if base.fit is None:
+                raise FitError(f"no curve minimum to analyse: {base.fit_error}")
+            r_bohr = base.fit.local.re
+            multiplicity = base.multiplicity
+        else:
+            r_bohr = float(angstrom_to_bohr(r_angstrom))
+        one = curve(sp, lv, Grid((r_bohr,), "single point"), multiplicity=multiplicity, store=st, fit=False, analyse_points=False)
+        scan = one.scan
+        cands = {name: pts[0] for name, pts in scan.branches.items() if pts and pts[0] is not None and pts[0].trusted}
+        lowest = scan.points[0]
+        if branch == "lowest":
+            chosen, why = lowest, "lowest solution"
+        elif branch in ("restricted", "unrestricted"):
+            if branch not in cands:
+                raise InputError(f"there is no trusted {branch} solution at this distance; computed: {', '.join(cands) or 'none'}")
+            chosen, why = cands[branch], f"{branch} branch, as asked"
+        else:
+            if "restricted" in cands and "unrestricted" in cands:
+                chosen, why = cands["restricted"], "restricted branch (the well of a closed-shell singlet)"
+            else:
+                chosen, why = lowest, "lowest solution"
+        if not chosen.trusted:
+            from .errors import CalculationError
+
+            raise CalculationError(f"the solution at {chosen.r_angstrom:.4f} A is flagged: {chosen.flag}")
+        from .analysis.orbitals import analyse_stored
+
+        mult = one.multiplicity
+        analysis = analyse_stored(sp, mult, lv, point_reference(scan, chosen), chosen.r_bohr,
+                                  stored_density(st, sp, mult, lv, chosen))
+        others = {k: v.energy_hartree for k, v in cands.items() if v is not chosen}
+        atoms = atom_levels(scan.limit, lv)
+    finally:
+        if own:
+            st.close()
+    return OrbitalsResult(sp, lv, mult, base.candidates if base else one.candidates, chosen, analysis, why, others, atoms,
+                          scan.limit.energy_hartree, base)
+
+
+def atom_levels(limit, level) -> tuple:
+    """Orbital energies of the separated atoms: per atom [(shell, spin, energy, occupation)]."""
+    import numpy as np
+
+    from .scan.scf import build_atom, make_scf
+
+    out = []
+    for st in limit.atoms:
+        mol = build_atom(st.symbol, level, st.charge, st.spin)
+        if mol.nelectron == 0:
+            out.append(())
+            continue
+        mf = make_scf(mol, "UHF")
+        dm = np.asarray(st.dm)
+        fock = mf.get_fock(dm=dm)
+        s = mol.intor("int1e_ovlp")
+        from scipy.linalg import eigh
+
+        labels = mol.ao_labels(fmt=False)
+        rows = []
+        for k, spin in enumerate(("alpha", "beta")):
+            e, c = eigh(fock[k], s)
+            occ_n = int(round(float(np.trace(dm[k] @ s))))
+            for j in range(len(e)):
+                w = c[:, j] * (s @ c[:, j])
+                shell = labels[int(np.argmax(np.abs(w)))][2]
+                rows.append((shell.lstrip("0123456789") and shell, spin, float(e[j]), 1.0 if j < occ_n else 0.0))
+        out.append(tuple(rows))
+    return tuple(out)
 
 
 def _with_fit(result: CurveResult) -> CurveResult:

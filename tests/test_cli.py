@@ -83,3 +83,39 @@ def test_help_and_no_command(capsys):
     assert main(["curve", "--help"]) == 0
     assert "--multiplicity" in capsys.readouterr().out
     assert main(["curve"]) == 2  # missing species: a usage error
+
+
+def test_orbitals_command_writes_json_and_diagram(tmp_path, capsys):
+    out = tmp_path / "orb"
+    code = run(tmp_path, "orbitals", "O2", "--level", "HF/STO-3G", "--r", "1.21", "--out", str(out))
+    assert code == 0
+    text = capsys.readouterr().out
+    assert "paramagnetic" in text and "Mayer" in text
+    doc = json.loads((out / "orbitals.json").read_text())
+    assert doc["schema_version"] == 1
+    assert set(doc["bond_orders"]) >= {"mo_count", "mulliken", "mayer"}
+    assert doc["unpaired_electrons"] == 2 and doc["magnetism"] == "paramagnetic"
+    mo = doc["orbitals"][0]
+    for key in ("energy_hartree", "occupation_alpha", "occupation_beta", "label", "formal_class",
+                "overlap_population_character", "composition_percent"):
+        assert key in mo
+    for name in ("orbital-levels.png", "orbital-levels.svg"):
+        assert (out / name).stat().st_size > 1000
+
+
+def test_curve_json_carries_bond_orders_along_the_curve(tmp_path):
+    out = tmp_path / "c"
+    assert run(tmp_path, "curve", "N2", "--level", "HF/STO-3G", "--from", "0.9", "--to", "2.5", "--points", "12", "--out", str(out)) == 0
+    doc = json.loads((out / "curve.json").read_text())
+    along = doc["along_curve"]
+    assert len(along) == 12
+    first = along[0]
+    assert first["bond_orders"]["mo_count"] == 3.0
+    assert "homo" in first["frontier"]
+    assert (out / "bond-orders.png").exists()
+
+
+def test_orbitals_needs_a_distance(tmp_path, capsys):
+    assert run(tmp_path, "orbitals", "N2") == 2
+    assert run(tmp_path, "orbitals", "N2", "--r", "-1") == 2
+    assert "positive" in capsys.readouterr().err

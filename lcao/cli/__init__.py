@@ -13,7 +13,7 @@ import sys
 
 from .. import __version__
 
-COMMANDS = ("curve",)
+COMMANDS = ("curve", "orbitals")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -25,8 +25,9 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"lcao {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     from . import curve as _curve
+    from . import orbitals as _orbitals
 
-    for name, mod in (("curve", _curve),):
+    for name, mod in (("curve", _curve), ("orbitals", _orbitals)):
         p = sub.add_parser(name, help=mod.HELP, description=mod.DESCRIPTION)
         mod.add_arguments(p)
         add_common(p)

@@ -123,7 +123,7 @@ def open_store(args):
 
 
 def run(args) -> int:
-    from ..export import write_curve_outputs
+    from ..export import write_outputs
     from ..export.io import prepare_out_dir
     from ..pipeline import curve, resolve_inputs, summary_lines
     from ..species import parse_species
@@ -141,7 +141,7 @@ def run(args) -> int:
             )
     finally:
         progress.close()
-    paths = write_curve_outputs(result, out)
+    paths = write_outputs(result, out)
     if not args.no_plots:
         from ..plots import CURVE_FIGURES, save_figure
 

@@ -71,6 +71,8 @@ def curve_document(result) -> dict:
         "notes": list(scan.notes) + list(result.warnings),
         "caution": CAUTION,
     }
+    if getattr(result, "along", ()):
+        doc["along_curve"] = [a for a in result.along]
     fit = getattr(result, "fit", None)
     if fit is not None:
         doc["fit"] = fit.as_dict()
@@ -113,7 +115,7 @@ CURVE_WRITERS = {
 }
 
 
-def write_curve_outputs(result, out_dir, writers=None) -> list[str]:
+def write_outputs(result, out_dir, writers=None) -> list[str]:
     """Render every output first, then write each atomically; returns the paths written."""
     writers = writers or CURVE_WRITERS
     rendered = {name: fn(result) for name, fn in writers.items()}
