@@ -44,6 +44,7 @@ class CurveResult:
         along: per point, a dict with bond orders, unpaired electrons and the
             frontier orbitals of the lowest trusted solution (None where the
             point is flagged), or empty when not asked for.
+        refined: the refinement points about the minimum used by the local fit.
     """
 
     species: Species
@@ -59,6 +60,7 @@ class CurveResult:
     computed: int = 0
     reused: int = 0
     along: tuple = ()
+    refined: tuple = ()
     warnings: tuple[str, ...] = field(default=())
 
     @property
@@ -120,6 +122,7 @@ def curve(
     fit: bool = True,
     isotopes: str | None = None,
     analyse_points: bool = True,
+    refine: bool = True,
     progress=None,
 ) -> CurveResult:
     """Compute a potential-energy curve with the state-following protocol.
@@ -135,6 +138,7 @@ def curve(
         fit: fit the curve (local polynomial and Morse) when possible.
         isotopes: mass numbers per atom for the fit, e.g. ``'13,16'`` (default most abundant).
         analyse_points: bond orders and frontier orbitals at every trusted point.
+        refine: add nine points 0.01 A apart about the coarse minimum for the local fit.
         progress: optional callable(sweep, r_bohr) after each point.
 
     Returns:
@@ -165,16 +169,37 @@ def curve(
             source = "given"
         scan = run_protocol(sp, mult, lv, gr, st, progress)
         along = point_summaries(sp, mult, lv, scan, st) if analyse_points else ()
+        refined, r_comp, r_reuse = (), 0, 0
+        if fit and refine:
+            refined, r_comp, r_reuse = _refine(sp, mult, lv, scan, st, progress)
     finally:
         if own:
             st.close()
     result = CurveResult(
         sp, lv, gr, mult, source, trials, scan, isotopes=iso,
-        computed=scan.computed + p_comp, reused=scan.reused + p_reuse, along=along,
+        computed=scan.computed + p_comp + r_comp, reused=scan.reused + p_reuse + r_reuse, along=along,
+        refined=refined,
     )
     if fit:
         result = _with_fit(result)
     return result
+
+
+def _refine(sp, mult, lv, scan, st, progress):
+    """Refinement points about the coarse minimum of the well (empty when there is none inside the grid)."""
+    from .errors import FitError
+    from .fit import well_points
+    from .fit.local import local_fit
+    from .scan.protocol import refine_minimum
+
+    well, branch = well_points(scan)
+    if len(well) < 5:
+        return (), 0, 0
+    try:
+        lf = local_fit([p.r_bohr for p in well], [p.energy_hartree for p in well])
+    except FitError:
+        return (), 0, 0
+    return refine_minimum(sp, mult, lv, scan, st, branch, lf.re, progress)
 
 
 def point_reference(scan, point) -> str:

@@ -6,8 +6,10 @@
 
 Which points are fitted:
 
-* the local fit (r_e, k, omega_e, omega_e x_e, B_e, alpha_e) uses the well
-  branch: for a closed-shell singlet under ``HF`` the restricted branch (the
+* the local fit (r_e, k, omega_e, omega_e x_e, B_e, alpha_e) uses the
+  refinement points about the minimum (nine points 0.01 A apart, computed by
+  the pipeline) when there are at least seven trusted ones, else the grid
+  points of the well branch: for a closed-shell singlet under ``HF`` the restricted branch (the
   state Hartree-Fock tables report), otherwise the lowest trusted points;
 * the Morse fit uses the lowest trusted points from the inner wall (up to
   max(2 D_e, 0.05 Eh) above the minimum) outward, and stops before a kink: the first point
@@ -166,12 +168,13 @@ class CurveFit:
         return out
 
 
-def _well_points(result):
-    branches = result.scan.branches
+def well_points(scan):
+    """(trusted points of the well branch, branch name); see the module docstring."""
+    branches = scan.branches
     if "restricted" in branches and "unrestricted" in branches:
         pts = [p for p in branches["restricted"] if p is not None and p.trusted]
         return pts, "restricted"
-    pts = [p for p in result.scan.points if p.trusted]
+    pts = [p for p in scan.points if p.trusted]
     return pts, (pts[0].branch if pts else "none")
 
 
@@ -227,12 +230,18 @@ def fit_curve(result, isotopes=None) -> CurveFit:
 
     iso = isotopes or getattr(result, "isotopes", None) or resolve_isotopes(result.species.atoms)
     mu = iso.reduced_mass_me
-    well, well_branch = _well_points(result)
+    well, well_branch = well_points(result.scan)
     if len(well) < 5:
         raise FitError(f"only {len(well)} trusted points in the well; a fit needs at least 5")
     r = np.array([p.r_bohr for p in well])
     e = np.array([p.energy_hartree for p in well])
     lf = local_fit(r, e)
+    refined = [p for p in getattr(result, "refined", ()) if p is not None and p.trusted]
+    if len(refined) >= 7:
+        try:
+            lf = local_fit([p.r_bohr for p in refined], [p.energy_hartree for p in refined])
+        except FitError as exc:
+            log.info("refinement points not used: %s", exc)
     consts = dunham_constants(lf.re, lf.k, lf.c3, lf.c4, mu)
     notes = []
     limit = result.limit_energy_hartree

@@ -368,3 +368,40 @@ def run_protocol(species, multiplicity, level, grid: Grid, store, progress=None)
         runner.reused,
         tuple(notes),
     )
+
+
+#: refinement about the coarse minimum: points at k * REFINE_STEP_ANGSTROM, k = -REFINE_HALF..REFINE_HALF
+REFINE_STEP_ANGSTROM = 0.01
+REFINE_HALF = 4
+
+
+def refine_minimum(species, multiplicity, level, scan: ScanResult, store, well_branch: str, r_guess_bohr: float, progress=None):
+    """Extra points about a coarse minimum for the local fit.
+
+    A chain warm-started from the nearest trusted point of the well branch, outward
+    then inward, with the same reference and stability following as the curve;
+    stored under the sweep ``<branch>/refine``.
+
+    Returns:
+        tuple of CurvePoint, increasing r (untrusted ones flagged).
+    """
+    from ..units import angstrom_to_bohr
+
+    pts = scan.branches.get(well_branch) or scan.points
+    good = [p for p in pts if p is not None and p.trusted]
+    if not good:
+        return ()
+    step = float(angstrom_to_bohr(REFINE_STEP_ANGSTROM))
+    r_new = [r_guess_bohr + k * step for k in range(-REFINE_HALF, REFINE_HALF + 1)]
+    nearest = min(good, key=lambda p: abs(p.r_bohr - r_guess_bohr))
+    ref = "UHF" if nearest.branch == "unrestricted" else ("ROHF" if scan.reference == "ROHF" else "RHF")
+    runner = _Runner(species, multiplicity, level, store, progress)
+    start = store.get_point(species, multiplicity, level, nearest.sweep, nearest.r_bohr)
+    dm0 = None if start is None else start.dm
+    name = f"{nearest.branch}/refine"
+    got: dict = {}
+    mid = REFINE_HALF
+    runner.chain(name, r_new, range(mid, len(r_new)), ref, dm0, got)
+    runner.chain(name, r_new, range(mid - 1, -1, -1), ref, got[mid].dm if got[mid].converged else dm0, got)
+    out = _flag_outliers(_as_curve_points(got, len(r_new), nearest.branch, name, ref))
+    return tuple(out), runner.computed, runner.reused

@@ -168,7 +168,7 @@ def _stability_step(mf, reference: str):
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            mo, stable = fn(mf, verbose=0, return_status=True)
+            mo, stable = fn(mf, verbose=0, return_status=True, nroots=1)
     except (LinearDependencyError, ZeroDivisionError) as exc:
         # Davidson finds no trial vector (e.g. a single open shell with nothing to rotate)
         log.debug("stability analysis skipped: %s", exc)
@@ -254,7 +254,7 @@ def unstable_towards_uhf(mf):
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        (mo_a, mo_b), stable = stability.rhf_external(mf, with_symmetry=False, verbose=0, return_status=True)
+        (mo_a, mo_b), stable = stability.rhf_external(mf, with_symmetry=False, verbose=0, return_status=True, nroots=1)
     if stable:
         return False, None
     occ = np.asarray(mf.mo_occ) / 2.0
