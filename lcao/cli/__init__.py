@@ -13,7 +13,7 @@ import sys
 
 from .. import __version__
 
-COMMANDS = ("curve", "orbitals")
+COMMANDS = ("curve", "orbitals", "series", "run")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -26,12 +26,19 @@ def build_parser() -> argparse.ArgumentParser:
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
     from . import curve as _curve
     from . import orbitals as _orbitals
+    from . import series as _series
 
-    for name, mod in (("curve", _curve), ("orbitals", _orbitals)):
-        p = sub.add_parser(name, help=mod.HELP, description=mod.DESCRIPTION)
-        mod.add_arguments(p)
+    table = (
+        ("curve", _curve.HELP, _curve.DESCRIPTION, _curve.add_arguments, _curve.run),
+        ("orbitals", _orbitals.HELP, _orbitals.DESCRIPTION, _orbitals.add_arguments, _orbitals.run),
+        ("series", _series.HELP, _series.DESCRIPTION, _series.add_arguments, _series.run),
+        ("run", _series.RUN_HELP, _series.RUN_HELP, _series.add_run_arguments, _series.run_study),
+    )
+    for name, help_text, description, add_arguments, run in table:
+        p = sub.add_parser(name, help=help_text, description=description)
+        add_arguments(p)
         add_common(p)
-        p.set_defaults(_run=mod.run)
+        p.set_defaults(_run=run)
     return parser
 
 

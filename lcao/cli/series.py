@@ -1,0 +1,141 @@
+"""``lcao series`` and ``lcao run``: members side by side, from the command line or a study file."""
+
+from __future__ import annotations
+
+import argparse
+import os
+import re
+import sys
+
+from .curve import Progress, add_grid_options, add_store_options, resolve_grid
+
+HELP = "curves, fits and orbitals of several species and/or levels side by side, with handbook values"
+DESCRIPTION = (
+    "Run a curve with fit and orbital analysis for every species at every level (an isoelectronic series, a"
+    " ladder of levels, or both) and write series.csv, series.json and the comparison plots. Members that fail"
+    " appear in the table with the reason."
+)
+RUN_HELP = "run a study file (TOML): species, levels, grids and outputs of a whole piece of work"
+
+
+def add_arguments(p: argparse.ArgumentParser) -> None:
+    p.add_argument("species", nargs="*", help="formulas (N2 CO CN- NO+ BF); or use --electrons")
+    p.add_argument("--level", action="append", help="METHOD/BASIS; repeat for a ladder (default HF/6-31G)")
+    p.add_argument("--d-shells", choices=("cartesian", "spherical"), help="override the basis d-shell convention")
+    rule = p.add_argument_group("members by electron count")
+    rule.add_argument("--electrons", metavar="N", type=int, help="every diatomic of the element pool with N electrons")
+    rule.add_argument("--elements", metavar="LIST", help="element pool, comma-separated (e.g. B,C,N,O,F)")
+    rule.add_argument("--charges", metavar="LO..HI", default="0..0", help="charge range, e.g. -2..2 (default 0..0)")
+    add_grid_options(p)
+    add_store_options(p)
+    p.add_argument("--out", metavar="DIR", default="lcao-results/series", help="output folder (default lcao-results/series)")
+    p.add_argument("--no-plots", action="store_true", help="skip the figures")
+
+
+def add_run_arguments(p: argparse.ArgumentParser) -> None:
+    p.add_argument("study", help="study file (TOML); see the README for an annotated example")
+    p.add_argument("--store", metavar="FILE", help="override the study's results store")
+    p.add_argument("--recompute", action="store_true", help="ignore stored points: compute afresh and replace them")
+    p.add_argument("--no-plots", action="store_true", help="skip the figures")
+
+
+def write_series(rows, out: str, title: str, plots: bool) -> list[str]:
+    from ..export.io import atomic_write_bytes
+    from ..export.series_files import SERIES_WRITERS
+
+    rendered = {name: fn(rows, title) for name, fn in SERIES_WRITERS.items()}
+    paths = []
+    for name, data in rendered.items():
+        path = os.path.join(out, name)
+        atomic_write_bytes(path, data)
+        paths.append(path)
+    if plots and any(r.status == "ok" for r in rows):
+        from ..plots import save_figure
+        from ..plots.series_plot import SERIES_FIGURES
+
+        for stem, fn in SERIES_FIGURES.items():
+            ax = fn(rows)
+            ax.set_title(title, fontsize=9)
+            paths += save_figure(ax, os.path.join(out, stem))
+    return paths
+
+
+def _report(rows, title, paths) -> int:
+    from ..series import table_lines
+
+    print(title)
+    for line in table_lines(rows):
+        print("  " + line)
+    failed = [r for r in rows if r.status != "ok"]
+    print("  (hb = handbook: Huber & Herzberg 1979 / NIST WebBook as shipped; err = computed - handbook)")
+    print("  caution: Hartree-Fock dissociation energies are poor and minimal-basis ones qualitative; do not feed them"
+          " to a kinetics, process or safety model without validated data.")
+    print(f"  wrote: {', '.join(paths)}")
+    return 1 if failed else 0
+
+
+def run(args) -> int:
+    from ..errors import InputError
+    from ..export.io import prepare_out_dir
+    from ..levels import parse_level
+    from ..series import by_electron_count, members_from, parse_charge_range, run_series
+    from ..species import parse_species
+    from ..store import Store
+
+    cart = None if args.d_shells is None else args.d_shells == "cartesian"
+    levels = [parse_level(t, cart) for t in (args.level or ["HF/6-31G"])]
+    if args.electrons is not None:
+        if args.species:
+            raise InputError("give species or --electrons, not both")
+        if not args.elements:
+            raise InputError("--electrons needs --elements, e.g. --elements B,C,N,O,F")
+        species = by_electron_count(args.electrons, [e.strip() for e in args.elements.split(",") if e.strip()], parse_charge_range(args.charges))
+    elif args.species:
+        species = [parse_species(t) for t in args.species]
+    else:
+        raise InputError("name the species (e.g. N2 CO CN- NO+ BF) or give --electrons with --elements")
+    grid = resolve_grid(args, species[0]) if (args.r_from is not None or args.r_to is not None) else None
+    points = int(args.points) if (args.points is not None and grid is None) else None
+    if points is not None:
+        from ..scan.grid import default_grid
+
+        default_grid(*species[0].z, points=points)  # validates the count
+    members = members_from(species, levels, grid, None, points)
+    out = prepare_out_dir(args.out)
+    progress = Progress(not args.quiet, "series")
+    try:
+        with Store(args.store, reuse=not args.recompute) as store:
+            rows = run_series(members, store, progress)
+    finally:
+        progress.close()
+    title = "series: " + ", ".join(dict.fromkeys(m.species.label for m in members)) + " at " + ", ".join(lv.text for lv in levels)
+    return _report(rows, title, write_series(rows, out, title, not args.no_plots))
+
+
+def _slug(name: str) -> str:
+    return re.sub(r"[^A-Za-z0-9._-]+", "-", name).strip("-") or "group"
+
+
+def run_study(args) -> int:
+    from ..export.io import prepare_out_dir
+    from ..series import run_series
+    from ..store import Store
+    from ..study import load_study
+
+    study = load_study(args.study)
+    store_path = args.store or study.store
+    out = prepare_out_dir(study.out)
+    status = 0
+    outs = {g.name: prepare_out_dir(os.path.join(out, _slug(g.name))) for g in study.groups}
+    progress = Progress(not args.quiet, "study")
+    try:
+        with Store(store_path, reuse=not args.recompute) as store:
+            for g in study.groups:  # each group's outputs are written as soon as it is done
+                rows = run_series(g.members, store, progress)
+                title = f"{study.title}: {g.name}" if study.title else g.name
+                status = max(status, _report(rows, title, write_series(rows, outs[g.name], title, not args.no_plots)))
+                print()
+    finally:
+        progress.close()
+    print(f"study {study.path}: results in {out}, store {store_path}", file=sys.stdout)
+    return status

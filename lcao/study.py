@@ -1,0 +1,152 @@
+"""Study files: a whole piece of work in one reviewable TOML file (``lcao run study.toml``).
+
+The file is parsed with ``tomllib`` (never evaluated), and every key and type
+is checked before anything is computed: an unknown key is an error naming the
+key and the allowed ones. See the README for an annotated example.
+
+Top level::
+
+    title = "..."            # text, optional
+    out = "results"          # output folder, relative to the study file (default: <file stem>-results)
+    store = "store.sqlite"   # results store, relative to the study file (default: <out>/lcao-store.sqlite)
+    [defaults]               # optional: levels, points, from, to, d_shells
+    [[group]]                # one or more: name and either species or electrons + elements (+ charges),
+                             # optionally levels, points, from, to, d_shells, multiplicity
+"""
+
+from __future__ import annotations
+
+import os
+import tomllib
+from dataclasses import dataclass
+
+from .errors import InputError
+
+TOP_KEYS = {"title": str, "out": str, "store": str, "defaults": dict, "group": list}
+SETTING_KEYS = {"levels": list, "points": int, "from": (int, float), "to": (int, float), "d_shells": str}
+GROUP_KEYS = {"name": str, "species": list, "electrons": int, "elements": list, "charges": (str, list), "multiplicity": dict, **SETTING_KEYS}
+
+
+class StudyError(InputError):
+    """A study file that cannot be read or has a wrong key or type."""
+
+
+@dataclass(frozen=True)
+class Group:
+    name: str
+    members: tuple
+
+
+@dataclass(frozen=True)
+class Study:
+    path: str
+    title: str
+    out: str
+    store: str
+    groups: tuple[Group, ...]
+
+
+def _type_name(t) -> str:
+    if isinstance(t, tuple):
+        return " or ".join(_type_name(x) for x in t)
+    return {str: "text", int: "whole number", float: "number", list: "list", dict: "table"}.get(t, t.__name__)
+
+
+def _check_keys(table: dict, allowed: dict, where: str) -> None:
+    for key, value in table.items():
+        if key not in allowed:
+            raise StudyError(f"{where}: unknown key {key!r}; allowed: {', '.join(sorted(allowed))}")
+        want = allowed[key]
+        ok = isinstance(value, want) and not (isinstance(value, bool) and want in (int, (int, float)))
+        if not ok:
+            raise StudyError(f"{where}: {key} must be {_type_name(want)}, got {type(value).__name__} {value!r}")
+
+
+def load_study(path) -> Study:
+    """Read and validate a study file; raises StudyError naming the problem."""
+    from .levels import parse_level
+    from .scan.grid import range_grid
+    from .series import by_electron_count, members_from, parse_charge_range
+    from .species import parse_species
+
+    path = os.fspath(path)
+    try:
+        with open(path, "rb") as fh:
+            data = tomllib.load(fh)
+    except FileNotFoundError:
+        raise StudyError(f"study file {path} does not exist") from None
+    except tomllib.TOMLDecodeError as exc:
+        raise StudyError(f"study file {path} is not valid TOML: {exc}") from None
+    except OSError as exc:
+        raise StudyError(f"cannot read study file {path}: {exc.strerror}") from None
+    _check_keys(data, TOP_KEYS, path)
+    defaults = data.get("defaults", {})
+    _check_keys(defaults, SETTING_KEYS, f"{path} [defaults]")
+    groups_raw = data.get("group", [])
+    if not groups_raw:
+        raise StudyError(f"{path}: no [[group]] tables; a study needs at least one")
+    base = os.path.dirname(os.path.abspath(path))
+    stem = os.path.splitext(os.path.basename(path))[0]
+    out = os.path.join(base, data.get("out", f"{stem}-results"))
+    store = os.path.join(base, data["store"]) if "store" in data else os.path.join(out, "lcao-store.sqlite")
+    groups = []
+    names = set()
+    for k, g in enumerate(groups_raw):
+        where = f"{path} [[group]] {k + 1}"
+        if not isinstance(g, dict):
+            raise StudyError(f"{where}: must be a table")
+        _check_keys(g, GROUP_KEYS, where)
+        name = g.get("name")
+        if not name:
+            raise StudyError(f"{where}: needs a name")
+        if name in names:
+            raise StudyError(f"{where}: the name {name!r} is used twice")
+        names.add(name)
+        where = f"{path} group {name!r}"
+        s = {**defaults, **{key: g[key] for key in SETTING_KEYS if key in g}}
+        level_texts = s.get("levels") or ["HF/6-31G"]
+        cart = None
+        if "d_shells" in s:
+            if s["d_shells"] not in ("cartesian", "spherical"):
+                raise StudyError(f"{where}: d_shells must be 'cartesian' or 'spherical', got {s['d_shells']!r}")
+            cart = s["d_shells"] == "cartesian"
+        try:
+            levels = [parse_level(t, cart) for t in level_texts]
+        except InputError as exc:
+            raise StudyError(f"{where}: {exc}") from None
+        grid = None
+        if ("from" in s) != ("to" in s):
+            raise StudyError(f"{where}: give both from and to (angstrom), or neither")
+        try:
+            if "from" in s:
+                grid = range_grid(s["from"], s["to"], s.get("points", 30))
+            if "species" in g and "electrons" in g:
+                raise StudyError(f"{where}: give species or electrons, not both")
+            if "species" in g:
+                species = [parse_species(t) for t in g["species"]]
+            elif "electrons" in g:
+                if "elements" not in g:
+                    raise StudyError(f"{where}: electrons needs an elements list")
+                ch = g.get("charges", "0..0")
+                lo_hi = parse_charge_range(ch) if isinstance(ch, str) else tuple(ch)
+                if len(lo_hi) != 2:
+                    raise StudyError(f"{where}: charges must be LOW..HIGH or [low, high]")
+                species = by_electron_count(g["electrons"], g["elements"], lo_hi)
+            else:
+                raise StudyError(f"{where}: needs species or electrons")
+            mults = g.get("multiplicity", {})
+            members = []
+            for sp in species:
+                m = mults.get(sp.label)
+                if m is not None:
+                    sp.check_multiplicity(m)
+                members += members_from([sp], levels, grid, m, None if grid else s.get("points"))
+            unknown = set(mults) - {sp.label for sp in species}
+            if unknown:
+                raise StudyError(f"{where}: multiplicity given for {', '.join(sorted(unknown))}, which is not in the group")
+        except StudyError:
+            raise
+        except InputError as exc:
+            raise StudyError(f"{where}: {exc}") from None
+        groups.append(Group(name, tuple(members)))
+    return Study(path, data.get("title", ""), out, store, tuple(groups))

@@ -1,0 +1,138 @@
+"""Series, ladders, study files and the handbook comparison."""
+
+import json
+
+import pytest
+
+from lcao.cli import main
+from lcao.data import handbook_row
+from lcao.levels import parse_level
+from lcao.series import by_electron_count, members_from, run_series
+from lcao.store import Store
+from lcao.study import StudyError, load_study
+
+SERIES_14 = ["N2", "CO", "CN-", "NO+", "BF"]
+
+
+@pytest.fixture(scope="module")
+def series14(tmp_path_factory):
+    path = tmp_path_factory.mktemp("series") / "store.sqlite"
+    with Store(path) as st:
+        rows = run_series(members_from(SERIES_14, [parse_level("HF/6-31G")], points=16), st)
+        n = st.count_points()
+    return rows, path, n
+
+
+def test_14_electron_series_matches_cccbdb_and_handbook(series14):
+    rows, _, _ = series14
+    by = {r.species: r for r in rows}
+    assert all(r.status == "ok" for r in rows)
+    # NIST CCCBDB HF/6-31G bond lengths (the values the issue quotes); the CCCBDB entries for CN-,
+    # NO+ and BF are not known to us here and are not checked
+    for sp, ref in (("N2", 1.089), ("CO", 1.131)):
+        assert abs(by[sp].values["re_angstrom"] - ref) < 0.002
+    for r in rows:
+        hb = handbook_row(r.species)
+        if hb is None:
+            assert r.handbook == {}
+            continue
+        for key in ("re_angstrom", "we_cm1", "d0_ev", "ground_term"):
+            assert r.handbook[key] == hb[key]
+        if hb.get("re_angstrom") is not None and hb["multiplicity"] == r.values["multiplicity"]:
+            assert r.errors["re_angstrom"] == pytest.approx(r.values["re_angstrom"] - hb["re_angstrom"])
+    # isoelectronic with N2: formal triple bonds, closed shells (common practice)
+    assert all(r.values["bond_order_mo_count"] == 3.0 and r.values["magnetism"] == "diamagnetic" for r in rows)
+
+
+def test_rerunning_a_series_computes_nothing(series14):
+    rows, path, n = series14
+    with Store(path) as st:
+        again = run_series(members_from(SERIES_14, [parse_level("HF/6-31G")], points=16), st)
+        assert st.count_points() == n
+    assert [r.values["re_angstrom"] for r in again] == [r.values["re_angstrom"] for r in rows]
+
+
+def test_n2_ladder_shows_the_hartree_fock_basis_trend(tmp_path):
+    # CCCBDB: HF/STO-3G 1.134, HF/6-31G 1.089, HF/6-31G* 1.078 A (Cartesian d); experiment 1.0977 A
+    # (Huber & Herzberg 1979). r_e shrinks as the basis grows; by these CCCBDB numbers it already lies
+    # below experiment at HF/6-31G and further below with polarisation functions (the Hartree-Fock
+    # limit is near 1.066 A), so that is what is tested.
+    levels = [parse_level(t) for t in ("HF/STO-3G", "HF/6-31G", "HF/6-31G*")]
+    assert levels[2].cartesian
+    with Store(tmp_path / "s.sqlite") as st:
+        rows = run_series(members_from(["N2"], levels, points=16), st)
+    re_ = [r.values["re_angstrom"] for r in rows]
+    assert re_[0] > re_[1] > re_[2]
+    assert re_[0] > 1.0977 > re_[1] > re_[2]
+    for got, ref in zip(re_, (1.134, 1.089, 1.078)):
+        assert abs(got - ref) < 0.002
+
+
+def test_members_by_electron_count():
+    got = {s.label for s in by_electron_count(14, ["B", "C", "N", "O", "F"], (-2, 2))}
+    assert {"N2", "CO", "CN-", "NO+", "BF", "C2^2-"} <= got
+    assert all(s.n_electrons == 14 for s in by_electron_count(14, ["B", "C", "N", "O", "F"], (-2, 2)))
+    assert {s.label for s in by_electron_count(14, ["C", "N", "O"], (0, 0))} == {"N2", "CO"}
+
+
+def test_failed_member_appears_with_its_reason(tmp_path):
+    with Store(tmp_path / "s.sqlite") as st:
+        rows = run_series(members_from(["H2", "XeF"], [parse_level("HF/6-31G")], points=12), st)
+    assert rows[0].status == "ok"
+    assert rows[1].status == "failed" and "Xe" in rows[1].reason and "6-31G" in rows[1].reason
+
+
+STUDY = '''
+title = "test study"
+out = "out"
+
+[defaults]
+levels = ["HF/STO-3G"]
+points = 12
+
+[[group]]
+name = "hydrides"
+species = ["H2", "LiH"]
+'''
+
+
+def test_study_file_runs_and_writes_each_group(tmp_path, capsys):
+    f = tmp_path / "study.toml"
+    f.write_text(STUDY)
+    assert main(["run", str(f), "-q"]) == 0
+    doc = json.loads((tmp_path / "out" / "hydrides" / "series.json").read_text())
+    assert doc["schema_version"] == 1 and [r["species"] for r in doc["rows"]] == ["H2", "LiH"]
+    assert (tmp_path / "out" / "hydrides" / "series.csv").read_text().startswith("species,level,status")
+    assert "H2" in capsys.readouterr().out
+
+
+@pytest.mark.parametrize(
+    "text,fragment",
+    [
+        (STUDY.replace("points = 12", "pionts = 12"), "'pionts'"),
+        (STUDY.replace('name = "hydrides"', 'name = "hydrides"\nspecis = ["N2"]'), "'specis'"),
+        (STUDY.replace("points = 12", 'points = "twelve"'), "points must be whole number"),
+        (STUDY + "\n[[group]]\nname = 'x'\nspecies = ['CO2']\n", "not a diatomic"),
+        ("title = 'unclosed", "not valid TOML"),
+        (STUDY.replace('levels = ["HF/STO-3G"]', 'levels = ["HF/STO-3Q"]'), "STO-3Q"),
+    ],
+)
+def test_bad_study_files_fail_before_any_computation(tmp_path, capsys, text, fragment):
+    f = tmp_path / "study.toml"
+    f.write_text(text)
+    with pytest.raises(StudyError) as err:
+        load_study(f)
+    assert fragment in str(err.value)
+    assert main(["run", str(f), "-q"]) == 2
+    assert fragment in capsys.readouterr().err
+    assert not (tmp_path / "out").exists()
+
+
+def test_series_command_writes_table_and_files(tmp_path, capsys):
+    code = main(["series", "H2", "LiH", "--level", "HF/STO-3G", "--points", "12", "--out", str(tmp_path / "o"),
+                 "--store", str(tmp_path / "s.sqlite"), "-q"])
+    assert code == 0
+    out = capsys.readouterr().out
+    assert "H2" in out and "LiH" in out and "handbook" in out
+    for name in ("series.csv", "series.json", "series-re.png", "series-bond-orders.png", "series-levels.png"):
+        assert (tmp_path / "o" / name).exists()
