@@ -13,7 +13,7 @@ import sys
 
 from .. import __version__
 
-COMMANDS = ("curve", "orbitals", "series", "run")
+COMMANDS = ("curve", "orbitals", "series", "run", "sheet")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -27,12 +27,14 @@ def build_parser() -> argparse.ArgumentParser:
     from . import curve as _curve
     from . import orbitals as _orbitals
     from . import series as _series
+    from . import sheet as _sheet
 
     table = (
         ("curve", _curve.HELP, _curve.DESCRIPTION, _curve.add_arguments, _curve.run),
         ("orbitals", _orbitals.HELP, _orbitals.DESCRIPTION, _orbitals.add_arguments, _orbitals.run),
         ("series", _series.HELP, _series.DESCRIPTION, _series.add_arguments, _series.run),
         ("run", _series.RUN_HELP, _series.RUN_HELP, _series.add_run_arguments, _series.run_study),
+        ("sheet", _sheet.HELP, _sheet.DESCRIPTION, _sheet.add_arguments, _sheet.run),
     )
     for name, help_text, description, add_arguments, run in table:
         p = sub.add_parser(name, help=help_text, description=description)

@@ -4,6 +4,9 @@
 Herzberg, Constants of Diatomic Molecules, 1979; NIST Chemistry WebBook).
 The ``checked`` column says how far each row has been checked; most values are
 quoted from memory and have not been checked against the printed table.
+``atomic_enthalpies.csv``: standard enthalpies of formation of the gaseous
+atoms (CODATA Key Values), for enthalpies of formation derived from a
+computed atomisation energy.
 """
 
 from __future__ import annotations
@@ -12,7 +15,7 @@ import csv
 from functools import lru_cache
 from importlib import resources
 
-NUMERIC = ("multiplicity", "re_angstrom", "we_cm1", "wexe_cm1", "be_cm1", "d0_ev")
+NUMERIC = ("multiplicity", "re_angstrom", "we_cm1", "wexe_cm1", "be_cm1", "alpha_e_cm1", "d0_ev")
 
 
 @lru_cache(maxsize=1)
@@ -32,3 +35,13 @@ def handbook_table() -> dict[str, dict]:
 def handbook_row(label: str) -> dict | None:
     """The handbook row of a species label (``'N2'``, ``'NO+'``), or None."""
     return handbook_table().get(label)
+
+
+@lru_cache(maxsize=1)
+def atomic_enthalpies() -> dict[str, dict]:
+    """Element symbol -> {'dhf298_kj_per_mol', 'source', 'checked'} (gaseous atoms at 298.15 K)."""
+    text = resources.files(__package__).joinpath("atomic_enthalpies.csv").read_text(encoding="utf-8")
+    out = {}
+    for row in csv.DictReader(text.splitlines()):
+        out[row["symbol"]] = {**row, "dhf298_kj_per_mol": float(row["dhf298_kj_per_mol"])}
+    return out

@@ -1,0 +1,50 @@
+"""``sheet.json``, ``sheet.csv`` (one flat record) and ``thermo.csv`` (the temperature grid)."""
+
+from __future__ import annotations
+
+import csv
+import io
+
+from .io import json_text
+
+
+def sheet_csv(sheet) -> str:
+    rec = dict(sheet.record)
+    p = sheet.provenance
+    rec["source"] = p.get("source")
+    rec["level_d_shells"] = (p.get("level") or {}).get("d_shells", "")
+    rec["lcao_version"] = p["versions"]["lcao"]
+    rec["pyscf_version"] = p["versions"]["pyscf"]
+    rec["date"] = p["date"]
+    rec["warnings"] = " | ".join(p.get("warnings", []))
+    buf = io.StringIO()
+    w = csv.DictWriter(buf, fieldnames=list(rec), lineterminator="\n")
+    w.writeheader()
+    w.writerow({k: "" if v is None else v for k, v in rec.items()})
+    return buf.getvalue()
+
+
+def thermo_csv(sheet) -> str:
+    t = sheet.thermo
+    cols = ["t_k", "cp_j_per_mol_k", "s_j_per_mol_k", "h_minus_h298_kj_per_mol", "gef_j_per_mol_k"]
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(cols + ["cp_polynomial_j_per_mol_k", "s_polynomial_j_per_mol_k"])
+    cp_p = sheet.nasa.cp(t["t_k"])
+    s_p = sheet.nasa.s(t["t_k"])
+    for i in range(len(t["t_k"])):
+        w.writerow([f"{t[c][i]:.6g}" for c in cols] + [f"{cp_p[i]:.6g}", f"{s_p[i]:.6g}"])
+    return buf.getvalue()
+
+
+def _doc(sheet):
+    from ..sheet import sheet_document
+
+    return json_text(sheet_document(sheet)).encode()
+
+
+SHEET_WRITERS = {
+    "sheet.json": _doc,
+    "sheet.csv": lambda sheet: sheet_csv(sheet).encode(),
+    "thermo.csv": lambda sheet: thermo_csv(sheet).encode(),
+}
