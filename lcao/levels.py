@@ -165,8 +165,26 @@ def check_basis_name(basis: str) -> None:
         except Exception:
             pass
     near = difflib.get_close_matches(key, _known_basis_names(), n=4, cutoff=0.6)
-    hint = f"; nearest names PySCF knows: {', '.join(near)}" if near else ""
+    shown = list(dict.fromkeys(_display_name(k) for k in near))
+    hint = f"; nearest names PySCF knows: {', '.join(shown)}" if shown else ""
     raise LevelError(f"unknown basis {basis!r}{hint}")
+
+
+def _display_name(key: str) -> str:
+    """A readable spelling of a PySCF basis key ('631gs' -> '6-31G*')."""
+    import os
+
+    from pyscf.gto import basis as _b
+
+    value = _b.ALIAS.get(key)
+    if not isinstance(value, str):
+        return key
+    name = os.path.splitext(os.path.basename(value))[0]
+    if name.endswith("ss") and name.lower().startswith(("3-", "6-")):
+        name = name[:-2] + "**"
+    elif name.endswith("s") and name.lower().startswith(("3-", "6-")):
+        name = name[:-1] + "*"
+    return name.upper() if name.lower().startswith("sto") else name
 
 
 def check_basis_covers(level: Level, symbols) -> None:

@@ -245,8 +245,9 @@ class Store:
         if self.read_only:
             return
         shape, blob = _pack(state.dm)
+        verb = "INSERT OR IGNORE" if self.reuse else "INSERT OR REPLACE"
         self.conn.execute(
-            f"{'INSERT OR IGNORE' if self.reuse else 'INSERT OR REPLACE'} INTO atoms(symbol, charge, spin, level, protocol, energy, converged, dm_shape, dm, created)"
+            f"{verb} INTO atoms(symbol, charge, spin, level, protocol, energy, converged, dm_shape, dm, created)"
             " VALUES (?,?,?,?,?,?,?,?,?,?)",
             (
                 state.symbol,
@@ -261,6 +262,32 @@ class Store:
                 _now(),
             ),
         )
+
+
+def check_store_path(path) -> None:
+    """Check a store path before a run, creating nothing.
+
+    An existing file must be an lcao store of a schema this version reads;
+    a new one needs an existing, writable folder. Raises InputError.
+    """
+    from .errors import InputError
+
+    path = os.fspath(path)
+    if os.path.exists(path):
+        if os.path.isdir(path):
+            raise InputError(f"store {path} is a folder, not a file")
+        try:
+            Store(path, read_only=True).close()
+        except StoreError as exc:
+            raise InputError(str(exc)) from None
+        if not os.access(path, os.W_OK):
+            raise InputError(f"store {path} cannot be written")
+        return
+    folder = os.path.dirname(os.path.abspath(path))
+    if not os.path.isdir(folder):
+        raise InputError(f"cannot create store {path}: folder {folder} does not exist")
+    if not os.access(folder, os.W_OK | os.X_OK):
+        raise InputError(f"cannot create store {path}: folder {folder} cannot be written")
 
 
 class MemoryStore(Store):

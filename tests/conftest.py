@@ -12,3 +12,11 @@ def store(tmp_path):
 
     with Store(tmp_path / "store.sqlite") as st:
         yield st
+
+try:  # property-based tests: the first example pays for importing PySCF, so no per-example deadline
+    from hypothesis import settings
+
+    settings.register_profile("lcao", deadline=None, derandomize=True)
+    settings.load_profile("lcao")
+except ImportError:  # pragma: no cover
+    pass

@@ -83,6 +83,11 @@ def main(argv=None) -> int:
             raise
         print(f"lcao: error: {exc}", file=sys.stderr)
         return 1
+    except OSError as exc:  # a disk or permission problem while writing
+        if args.debug:
+            raise
+        print(f"lcao: error: {exc.strerror or exc}: {exc.filename or ''}", file=sys.stderr)
+        return 1
     except KeyboardInterrupt:
         store = getattr(args, "store", None)
         where = f" in {store}" if store else ""

@@ -15,6 +15,8 @@ DESCRIPTION = (
 
 #: A run with more than this fraction of flagged points exits with status 1.
 MAX_FLAGGED_FRACTION = 0.25
+#: fewest grid points ``lcao curve`` accepts (the fits need five trusted points)
+MIN_CURVE_POINTS = 5
 
 
 def add_arguments(p: argparse.ArgumentParser) -> None:
@@ -122,9 +124,18 @@ def open_store(args):
     return Store(args.store, reuse=not args.recompute)
 
 
+def check_outputs(args, out):
+    """Check the output folder and the store before anything is computed or written."""
+    from ..export.io import check_out_dir
+    from ..store import check_store_path
+
+    out = check_out_dir(out)
+    check_store_path(args.store)
+    return out
+
+
 def run(args) -> int:
     from ..export import write_outputs
-    from ..export.io import prepare_out_dir
     from ..pipeline import curve, resolve_inputs, summary_lines
     from ..species import parse_species
 
@@ -132,7 +143,14 @@ def run(args) -> int:
     level = resolve_level(args)
     grid = resolve_grid(args, species)
     species, level, grid = resolve_inputs(species, level, grid, args.multiplicity)
-    out = prepare_out_dir(args.out or default_out_dir(species, level))
+    if len(grid if grid is not None else ()) and len(grid) < MIN_CURVE_POINTS:
+        from ..errors import GridError
+
+        raise GridError(f"--points {len(grid)} is too few for a curve fit; give at least {MIN_CURVE_POINTS} (or use 'lcao orbitals' for one distance)")
+    from ..masses import resolve_isotopes
+
+    resolve_isotopes(species.atoms, args.isotopes)
+    out = check_outputs(args, args.out or default_out_dir(species, level))
     progress = Progress(not args.quiet, f"{species.label} {level.text}")
     try:
         with open_store(args) as store:
@@ -152,7 +170,12 @@ def run(args) -> int:
     print(f"  wrote: {', '.join(paths)}")
     n = len(result.points)
     flagged = n - len(result.trusted_points)
+    status = 0
     if not result.trusted_points or flagged > MAX_FLAGGED_FRACTION * n:
-        print(f"lcao: {flagged} of {n} points are flagged (more than {MAX_FLAGGED_FRACTION:.0%})", file=sys.stderr)
-        return 1
-    return 0
+        print(f"lcao: WARNING: {flagged} of {n} points are flagged, more than {MAX_FLAGGED_FRACTION:.0%};"
+              " the curve and its fit are not to be trusted", file=sys.stderr)
+        status = 1
+    if result.fit is None:
+        print(f"lcao: no fit: {result.fit_error}", file=sys.stderr)
+        status = 1
+    return status

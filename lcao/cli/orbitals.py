@@ -5,7 +5,16 @@ from __future__ import annotations
 import argparse
 import os
 
-from .curve import Progress, add_grid_options, add_level_options, add_store_options, open_store, resolve_grid, resolve_level
+from .curve import (
+    Progress,
+    add_grid_options,
+    add_level_options,
+    add_store_options,
+    check_outputs,
+    open_store,
+    resolve_grid,
+    resolve_level,
+)
 
 HELP = "analyse the orbitals at one distance: characters, bond orders, magnetism, overlaps"
 DESCRIPTION = (
@@ -88,7 +97,6 @@ def table_lines(res) -> list[str]:
 
 def run(args) -> int:
     from ..export import ORBITAL_WRITERS
-    from ..export.io import prepare_out_dir
     from ..export.curve_files import write_outputs
     from ..pipeline import orbitals, resolve_inputs
     from ..species import parse_species
@@ -99,7 +107,7 @@ def run(args) -> int:
     grid = resolve_grid(args, species)
     r = None if args.at_minimum else _distance(args.r)
     species, level, grid = resolve_inputs(species, level, grid, args.multiplicity)
-    out = prepare_out_dir(args.out or default_out_dir(species, level) + "_orbitals")
+    out = check_outputs(args, args.out or default_out_dir(species, level) + "_orbitals")
     progress = Progress(not args.quiet, f"{species.label} {level.text}")
     try:
         with open_store(args) as store:

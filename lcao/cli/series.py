@@ -40,10 +40,11 @@ def add_run_arguments(p: argparse.ArgumentParser) -> None:
 
 
 def write_series(rows, out: str, title: str, plots: bool) -> list[str]:
-    from ..export.io import atomic_write_bytes
+    from ..export.io import atomic_write_bytes, ensure_dir
     from ..export.series_files import SERIES_WRITERS
 
     rendered = {name: fn(rows, title) for name, fn in SERIES_WRITERS.items()}
+    ensure_dir(out)
     paths = []
     for name, data in rendered.items():
         path = os.path.join(out, name)
@@ -76,7 +77,7 @@ def _report(rows, title, paths) -> int:
 
 def run(args) -> int:
     from ..errors import InputError
-    from ..export.io import prepare_out_dir
+    from ..export.io import check_out_dir
     from ..levels import parse_level
     from ..series import by_electron_count, members_from, parse_charge_range, run_series
     from ..species import parse_species
@@ -101,7 +102,10 @@ def run(args) -> int:
 
         default_grid(*species[0].z, points=points)  # validates the count
     members = members_from(species, levels, grid, None, points)
-    out = prepare_out_dir(args.out)
+    from ..store import check_store_path
+
+    out = check_out_dir(args.out)
+    check_store_path(args.store)
     progress = Progress(not args.quiet, "series")
     try:
         with Store(args.store, reuse=not args.recompute) as store:
@@ -117,18 +121,23 @@ def _slug(name: str) -> str:
 
 
 def run_study(args) -> int:
-    from ..export.io import prepare_out_dir
+    from ..export.io import check_out_dir
     from ..series import run_series
-    from ..store import Store
+    from ..store import Store, check_store_path
     from ..study import load_study
 
     study = load_study(args.study)
     store_path = args.store or study.store
-    out = prepare_out_dir(study.out)
+    out = check_out_dir(study.out)
+    if not os.path.exists(store_path) and not os.path.isdir(os.path.dirname(os.path.abspath(store_path))):
+        check_out_dir(os.path.dirname(os.path.abspath(store_path)))  # the store's folder will be made
+    else:
+        check_store_path(store_path)
     status = 0
-    outs = {g.name: prepare_out_dir(os.path.join(out, _slug(g.name))) for g in study.groups}
+    outs = {g.name: os.path.join(out, _slug(g.name)) for g in study.groups}
     progress = Progress(not args.quiet, "study")
     try:
+        os.makedirs(os.path.dirname(os.path.abspath(store_path)), exist_ok=True)
         with Store(store_path, reuse=not args.recompute) as store:
             for g in study.groups:  # each group's outputs are written as soon as it is done
                 rows = run_series(g.members, store, progress)

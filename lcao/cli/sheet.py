@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 import os
 
-from .curve import Progress, add_grid_options, add_store_options, open_store, resolve_grid
+from .curve import Progress, add_grid_options, add_store_options, check_outputs, open_store, resolve_grid
 
 HELP = "parameter sheet for kinetics models: constants in several units, thermochemistry, NASA polynomials"
 DESCRIPTION = (
@@ -36,7 +36,6 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
 
 def run(args) -> int:
     from ..export.curve_files import write_outputs
-    from ..export.io import prepare_out_dir
     from ..export.sheet_files import SHEET_WRITERS
     from ..levels import parse_level
     from ..sheet import build_sheet
@@ -57,7 +56,16 @@ def run(args) -> int:
 
         if handbook_row(species.label) is None:
             raise InputError(f"the shipped handbook table has no row for {species.label}")
-    out = prepare_out_dir(args.out or os.path.join("lcao-results", f"{species.slug}_sheet"))
+    from ..masses import resolve_isotopes
+
+    resolve_isotopes(species.atoms, args.isotopes)
+    out = args.out or os.path.join("lcao-results", f"{species.slug}_sheet")
+    if args.constants == "handbook":
+        from ..export.io import check_out_dir
+
+        check_out_dir(out)
+    else:
+        out = check_outputs(args, out)
     progress = Progress(not args.quiet, f"{species.label} sheet")
     try:
         if args.constants == "handbook":

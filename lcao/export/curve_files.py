@@ -117,8 +117,11 @@ CURVE_WRITERS = {
 
 def write_outputs(result, out_dir, writers=None) -> list[str]:
     """Render every output first, then write each atomically; returns the paths written."""
+    from .io import ensure_dir
+
     writers = writers or CURVE_WRITERS
     rendered = {name: fn(result) for name, fn in writers.items()}
+    ensure_dir(out_dir)
     paths = []
     for name, data in rendered.items():
         path = os.path.join(os.fspath(out_dir), name)

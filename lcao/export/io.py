@@ -58,25 +58,31 @@ def atomic_write_json(path, obj) -> None:
     atomic_write_text(path, json_text(obj))
 
 
-def prepare_out_dir(path) -> str:
-    """Create the output folder if needed and check it can be written.
+def check_out_dir(path) -> str:
+    """Check that the output folder can be written, without creating anything.
 
-    Raises:
-        InputError: naming the folder, before anything is computed.
+    The folder may not exist yet; then its nearest existing parent must be a
+    writable folder. Raises InputError naming the path.
     """
     from ..errors import InputError
 
     path = os.fspath(path)
-    try:
-        os.makedirs(path, exist_ok=True)
-    except OSError as exc:
-        raise InputError(f"cannot create output folder {path}: {exc.strerror}") from None
-    if not os.path.isdir(path):
-        raise InputError(f"output path {path} exists and is not a folder")
-    try:
-        fd, probe = tempfile.mkstemp(prefix=".lcao-write-check-", dir=path)
-        os.close(fd)
-        os.unlink(probe)
-    except OSError as exc:
-        raise InputError(f"output folder {path} cannot be written: {exc.strerror}") from None
+    if os.path.exists(path):
+        if not os.path.isdir(path):
+            raise InputError(f"output path {path} exists and is not a folder")
+        if not os.access(path, os.W_OK | os.X_OK):
+            raise InputError(f"output folder {path} cannot be written")
+        return path
+    parent = os.path.dirname(os.path.abspath(path))
+    while not os.path.exists(parent):
+        parent = os.path.dirname(parent)
+    if not os.path.isdir(parent):
+        raise InputError(f"cannot create output folder {path}: {parent} is not a folder")
+    if not os.access(parent, os.W_OK | os.X_OK):
+        raise InputError(f"cannot create output folder {path}: {parent} cannot be written")
     return path
+
+
+def ensure_dir(path) -> str:
+    os.makedirs(os.fspath(path), exist_ok=True)
+    return os.fspath(path)

@@ -82,8 +82,9 @@ def save_figure(ax, path_stem: str) -> list[str]:
     """Write ``path_stem.png`` and ``path_stem.svg`` atomically; returns the paths."""
     import io
 
-    from ..export.io import atomic_write_bytes
+    from ..export.io import atomic_write_bytes, ensure_dir
 
+    ensure_dir(os.path.dirname(os.path.abspath(path_stem)))
     fig = ax.figure
     fig.tight_layout()
     out = []
