@@ -4,16 +4,13 @@ import json
 import os
 import signal
 import sqlite3
-import subprocess
-import sys
 import time
 
 import pytest
 
 from lcao.cli import main
+from helpers import ROOT, count_rows, spawn
 from lcao.store import SCHEMA_VERSION, Store
-
-ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
 
 
 def run(tmp_path, *args):
@@ -110,32 +107,13 @@ def test_unconverged_points_are_flagged_excluded_and_reported(tmp_path, capsys, 
     assert "points are flagged" in capsys.readouterr().err
 
 
-def _spawn(args, env_extra=None):
-    env = dict(os.environ, OMP_NUM_THREADS="1", PYTHONPATH=ROOT + os.pathsep + os.environ.get("PYTHONPATH", ""))
-    env.update(env_extra or {})
-    return subprocess.Popen([sys.executable, "-m", "lcao", *args], env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE)
-
-
-def _rows(path):
-    if not os.path.exists(path):
-        return 0
-    try:
-        con = sqlite3.connect(f"file:{path}?mode=ro", uri=True, timeout=5)
-        try:
-            return con.execute("SELECT COUNT(*) FROM points").fetchone()[0]
-        finally:
-            con.close()
-    except sqlite3.OperationalError:
-        return 0
-
-
 CURVE = ["curve", "NO", "--level", "HF/STO-3G", "--from", "0.9", "--to", "3.5", "--points", "20", "-q", "--no-plots"]
 
 
 def test_two_runs_writing_one_store_both_finish_and_store_each_point_once(tmp_path):
     store = str(tmp_path / "shared.sqlite")
-    a = _spawn(CURVE + ["--store", store, "--out", str(tmp_path / "a")])
-    b = _spawn(CURVE + ["--store", store, "--out", str(tmp_path / "b")])
+    a = spawn(CURVE + ["--store", store, "--out", str(tmp_path / "a")])
+    b = spawn(CURVE + ["--store", store, "--out", str(tmp_path / "b")])
     assert a.wait(timeout=300) == 0, a.stderr.read().decode()
     assert b.wait(timeout=300) == 0, b.stderr.read().decode()
     con = sqlite3.connect(store)
@@ -146,9 +124,9 @@ def test_two_runs_writing_one_store_both_finish_and_store_each_point_once(tmp_pa
     con.close()
     assert dup == 0
     ref = tmp_path / "ref.sqlite"
-    c = _spawn(CURVE + ["--store", str(ref), "--out", str(tmp_path / "c")])
+    c = spawn(CURVE + ["--store", str(ref), "--out", str(tmp_path / "c")])
     assert c.wait(timeout=300) == 0
-    assert n == _rows(str(ref))
+    assert n == count_rows(str(ref))
     da = json.loads((tmp_path / "a" / "curve.json").read_text())
     db = json.loads((tmp_path / "b" / "curve.json").read_text())
     assert [p["energy_hartree"] for p in da["points"]] == pytest.approx([p["energy_hartree"] for p in db["points"]], abs=1e-9)
@@ -156,9 +134,9 @@ def test_two_runs_writing_one_store_both_finish_and_store_each_point_once(tmp_pa
 
 def test_ctrl_c_stops_cleanly_and_says_how_to_resume(tmp_path):
     store = str(tmp_path / "s.sqlite")
-    proc = _spawn(CURVE + ["--store", store, "--out", str(tmp_path / "o")])
+    proc = spawn(CURVE + ["--store", store, "--out", str(tmp_path / "o")])
     deadline = time.time() + 120
-    while _rows(store) < 8 and time.time() < deadline and proc.poll() is None:
+    while count_rows(store) < 8 and time.time() < deadline and proc.poll() is None:
         time.sleep(0.05)
     assert proc.poll() is None
     proc.send_signal(signal.SIGINT)
@@ -166,10 +144,10 @@ def test_ctrl_c_stops_cleanly_and_says_how_to_resume(tmp_path):
     err = proc.stderr.read().decode()
     assert code == 130
     assert "Run the same command again to resume" in err and "Traceback" not in err
-    kept = _rows(store)
+    kept = count_rows(store)
     assert kept >= 8
     assert not (tmp_path / "o" / "curve.json").exists()
-    again = _spawn(CURVE + ["--store", store, "--out", str(tmp_path / "o")])
+    again = spawn(CURVE + ["--store", store, "--out", str(tmp_path / "o")])
     assert again.wait(timeout=300) == 0
     doc = json.loads((tmp_path / "o" / "curve.json").read_text())
     assert doc["counts"]["reused_from_store"] >= kept

@@ -4,8 +4,6 @@ import json
 import os
 import signal
 import sqlite3
-import subprocess
-import sys
 import time
 
 import pytest
@@ -13,27 +11,7 @@ import pytest
 from lcao.errors import StoreError
 from lcao.store import SCHEMA_VERSION, Store
 
-ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
-
-
-def run_cli(args, env_extra=None, **kw):
-    env = dict(os.environ, OMP_NUM_THREADS="1", PYTHONPATH=ROOT + os.pathsep + os.environ.get("PYTHONPATH", ""))
-    env.update(env_extra or {})
-    return subprocess.Popen([sys.executable, "-m", "lcao", *args], env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE, **kw)
-
-
-def count_rows(path):
-    if not os.path.exists(path):
-        return 0
-    try:
-        con = sqlite3.connect(f"file:{path}?mode=ro", uri=True, timeout=5)
-        try:
-            return con.execute("SELECT COUNT(*) FROM points").fetchone()[0]
-        finally:
-            con.close()
-    except sqlite3.OperationalError:
-        return 0
-
+from helpers import count_rows, spawn
 
 CURVE = ["curve", "NO", "--level", "HF/6-31G", "--from", "0.9", "--to", "3.5", "--points", "24", "-q"]
 
@@ -42,11 +20,11 @@ def test_sigkill_mid_scan_then_rerun_gives_identical_results(tmp_path):
     killed_store = str(tmp_path / "killed.sqlite")
     clean_store = str(tmp_path / "clean.sqlite")
     # reference: an uninterrupted run
-    ref = run_cli(CURVE + ["--store", clean_store, "--out", str(tmp_path / "ref")])
+    ref = spawn(CURVE + ["--store", clean_store, "--out", str(tmp_path / "ref")])
     assert ref.wait(timeout=300) == 0, ref.stderr.read().decode()
     total = count_rows(clean_store)
     # a run killed once part of the points are stored
-    proc = run_cli(CURVE + ["--store", killed_store, "--out", str(tmp_path / "killed")])
+    proc = spawn(CURVE + ["--store", killed_store, "--out", str(tmp_path / "killed")])
     deadline = time.time() + 240
     while count_rows(killed_store) < total // 3 and time.time() < deadline and proc.poll() is None:
         time.sleep(0.05)
@@ -57,7 +35,7 @@ def test_sigkill_mid_scan_then_rerun_gives_identical_results(tmp_path):
     assert 0 < stored < total
     # nothing half-written: the output folder has no curve.json yet
     assert not os.path.exists(tmp_path / "killed" / "curve.json")
-    again = run_cli(CURVE + ["--store", killed_store, "--out", str(tmp_path / "killed")])
+    again = spawn(CURVE + ["--store", killed_store, "--out", str(tmp_path / "killed")])
     assert again.wait(timeout=300) == 0, again.stderr.read().decode()
     doc = json.loads((tmp_path / "killed" / "curve.json").read_text())
     ref_doc = json.loads((tmp_path / "ref" / "curve.json").read_text())

@@ -53,6 +53,24 @@ class Solution:
     scf: object = field(default=None, repr=False, compare=False)
 
 
+def _build(atoms, level, charge: int, spin: int):
+    from pyscf import gto
+
+    mol = gto.Mole()
+    mol.atom = atoms
+    mol.unit = "Bohr"
+    mol.basis = level.basis
+    mol.cart = level.cartesian
+    mol.charge = charge
+    mol.spin = spin
+    mol.symmetry = False
+    mol.verbose = 0
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        mol.build(dump_input=False, parse_arg=False)
+    return mol
+
+
 def build_molecule(symbols, r_bohr: float, level, charge: int, spin: int):
     """A PySCF molecule on the z axis, no symmetry, no output.
 
@@ -62,40 +80,12 @@ def build_molecule(symbols, r_bohr: float, level, charge: int, spin: int):
         level: :class:`lcao.levels.Level`.
         charge: net charge; spin: 2S (number of alpha minus beta electrons).
     """
-    from pyscf import gto
-
-    mol = gto.Mole()
-    mol.atom = [(symbols[0], (0.0, 0.0, 0.0)), (symbols[1], (0.0, 0.0, float(r_bohr)))]
-    mol.unit = "Bohr"
-    mol.basis = level.basis
-    mol.cart = level.cartesian
-    mol.charge = charge
-    mol.spin = spin
-    mol.symmetry = False
-    mol.verbose = 0
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        mol.build(dump_input=False, parse_arg=False)
-    return mol
+    return _build([(symbols[0], (0.0, 0.0, 0.0)), (symbols[1], (0.0, 0.0, float(r_bohr)))], level, charge, spin)
 
 
 def build_atom(symbol: str, level, charge: int, spin: int):
     """A single atom at the origin, no symmetry."""
-    from pyscf import gto
-
-    mol = gto.Mole()
-    mol.atom = [(symbol, (0.0, 0.0, 0.0))]
-    mol.unit = "Bohr"
-    mol.basis = level.basis
-    mol.cart = level.cartesian
-    mol.charge = charge
-    mol.spin = spin
-    mol.symmetry = False
-    mol.verbose = 0
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        mol.build(dump_input=False, parse_arg=False)
-    return mol
+    return _build([(symbol, (0.0, 0.0, 0.0))], level, charge, spin)
 
 
 def make_scf(mol, reference: str):
