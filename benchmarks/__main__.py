@@ -1,9 +1,15 @@
-"""``python -m benchmarks``: wall time, per-point time, tool/baseline ratio and peak memory.
+"""``python -m benchmarks``: wall time, per-point time, ratio against a baseline in the same run, peak memory.
 
-Cases: a 40-point N2 curve (0.8-3.0 A) in HF/STO-3G and HF/6-31G, and a 40-point NO curve, each done by
-(a) the loop a user writes by hand (a new molecule and a default SCF at every distance, energies only) and
-(b) ``lcao.curve`` with the full protocol (both sweeps, stability checks, fit) and an in-memory store.
-Peak memory is the process's maximum resident set size after each case (it only grows).
+Cases (each measured against its baseline in the same run):
+  curve    a 40-point N2 and NO curve (0.8-3.0 A) at HF/STO-3G and HF/6-31G: the hand-written loop (a new
+           molecule and a default SCF at every distance, energies only) against ``lcao.curve`` with the full
+           protocol (sweeps, stability checks, refinement, orbital analysis along the curve, fit);
+  series   a 6-species HF/6-31G series (N2, CO, BF, NO+, CN-, O2; 40-point default grids) on one worker
+           against two workers, and a rerun from the store against the first run;
+  shell    the same series as a user sees it, whole processes from the shell: a hand-written script that
+           loops over the species and distances computing energies only, against ``lcao series``;
+  slow     (with --slow) a 40-point N2 curve at HF/cc-pVTZ.
+Peak memory is the largest resident set of the process (or of a child process for the shell case).
 """
 
 from __future__ import annotations
@@ -12,12 +18,27 @@ import argparse
 import json
 import os
 import resource
+import subprocess
 import sys
+import tempfile
 import time
 
 import numpy as np
 
-CASES = [("N2", "HF/STO-3G", 1), ("N2", "HF/6-31G", 1), ("NO", "HF/STO-3G", 2), ("NO", "HF/6-31G", 2)]
+CURVES = [("N2", "HF/STO-3G", 1), ("N2", "HF/6-31G", 1), ("NO", "HF/STO-3G", 2), ("NO", "HF/6-31G", 2)]
+SERIES = ["N2", "CO", "BF", "NO+", "CN-", "O2"]
+ROOT = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
+
+HAND_SCRIPT = """
+import numpy as np
+from pyscf import gto, scf
+species = {"N2": ("N", "N", 0, 0), "CO": ("C", "O", 0, 0), "BF": ("B", "F", 0, 0),
+           "NO+": ("N", "O", 1, 0), "CN-": ("C", "N", -1, 0), "O2": ("O", "O", 0, 2)}
+for name, (a, b, q, s) in species.items():
+    for r in np.linspace(0.8, 3.0, 40):
+        mol = gto.M(atom=f"{a} 0 0 0; {b} 0 0 {r}", basis="6-31g", charge=q, spin=s, verbose=0)
+        (scf.RHF(mol) if s == 0 else scf.UHF(mol)).kernel()
+"""
 
 
 def baseline(species, level, mult, r):
@@ -27,12 +48,9 @@ def baseline(species, level, mult, r):
 
     sp = parse_species(species)
     basis = level.split("/")[1]
-    out = []
     for x in r:
         mol = gto.M(atom=f"{sp.atoms[0]} 0 0 0; {sp.atoms[1]} 0 0 {x}", basis=basis, spin=mult - 1, verbose=0)
-        mf = scf.RHF(mol) if mult == 1 else scf.UHF(mol)
-        out.append(mf.kernel())
-    return out
+        (scf.RHF(mol) if mult == 1 else scf.UHF(mol)).kernel()
 
 
 def tool(species, level, mult, r):
@@ -48,9 +66,67 @@ def peak_mb():
     return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
 
 
+def child_peak_mb():
+    return resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024.0
+
+
+def timed(fn, *a):
+    t0 = time.perf_counter()
+    out = fn(*a)
+    return time.perf_counter() - t0, out
+
+
+def row(case, base_label, tb, tool_label, tt, points, mem):
+    rec = {
+        "case": case,
+        "baseline": base_label,
+        "baseline_s": tb,
+        "tool": tool_label,
+        "tool_s": tt,
+        "points": points,
+        "baseline_ms_per_point": 1000 * tb / points if points else None,
+        "tool_ms_per_point": 1000 * tt / points if points else None,
+        "ratio_tool_over_baseline": tt / tb,
+        "peak_rss_mb": mem,
+    }
+    per = f" ({rec['tool_ms_per_point']:6.1f} vs {rec['baseline_ms_per_point']:6.1f} ms/pt)" if points else ""
+    print(f"{case:34s} {tool_label:>18s} {tt:7.2f} s  {base_label:>18s} {tb:7.2f} s  ratio {tt / tb:5.2f}{per}  peak {mem:5.0f} MB")
+    return rec
+
+
+def run_series_case(rows, tmp):
+    from lcao.levels import parse_level
+    from lcao.parallel import run_parallel
+    from lcao.series import members_from, run_series
+    from lcao.store import Store
+
+    members = members_from(SERIES, [parse_level("HF/6-31G")], points=40)
+    with Store(os.path.join(tmp, "one.sqlite")) as st:
+        t1, _ = timed(run_series, members, st)
+    t2, _ = timed(run_parallel, members, os.path.join(tmp, "two.sqlite"), 2)
+    rows.append(row("series 6 x HF/6-31G, 2 workers", "1 worker", t1, "2 workers", t2, 0, peak_mb()))
+    t3, _ = timed(run_parallel, members, os.path.join(tmp, "two.sqlite"), 2)
+    rows.append(row("series rerun from the store", "first run", t2, "rerun", t3, 0, peak_mb()))
+
+
+def run_shell_case(rows, tmp):
+    env = dict(os.environ, OMP_NUM_THREADS="1", PYTHONPATH=ROOT)
+    t0 = time.perf_counter()
+    subprocess.run([sys.executable, "-c", HAND_SCRIPT], check=True, env=env)
+    tb = time.perf_counter() - t0
+    t0 = time.perf_counter()
+    subprocess.run([sys.executable, "-m", "lcao", "series", *SERIES, "--level", "HF/6-31G", "--points", "40", "--workers", "2",
+                    "--store", os.path.join(tmp, "shell.sqlite"), "--out", os.path.join(tmp, "shell"), "-q", "--no-plots"],
+                   check=True, env=env, stdout=subprocess.DEVNULL)
+    tt = time.perf_counter() - t0
+    rows.append(row("shell: series of 6 at HF/6-31G", "hand script", tb, "lcao series", tt, 6 * 40, child_peak_mb()))
+
+
 def main(argv=None):
-    p = argparse.ArgumentParser(prog="python -m benchmarks")
+    p = argparse.ArgumentParser(prog="python -m benchmarks", description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("--points", type=int, default=40)
+    p.add_argument("--cases", default="curve,series,shell", help="comma-separated: curve, series, shell, slow")
+    p.add_argument("--slow", action="store_true", help="also run the cc-pVTZ curve")
     p.add_argument("--out", default=os.path.join(os.path.dirname(__file__), "results", "latest.json"))
     args = p.parse_args(argv)
     from pyscf import lib
@@ -59,36 +135,24 @@ def main(argv=None):
     import warnings
 
     warnings.simplefilter("ignore")
+    cases = set(args.cases.split(",")) | ({"slow"} if args.slow else set())
     r = np.linspace(0.8, 3.0, args.points)
     rows = []
-    for species, level, mult in CASES:
-        t0 = time.perf_counter()
-        baseline(species, level, mult, r)
-        tb = time.perf_counter() - t0
-        mb = peak_mb()
-        t0 = time.perf_counter()
-        tool(species, level, mult, r)
-        tt = time.perf_counter() - t0
-        rows.append(
-            {
-                "case": f"{species} {level} {args.points} points",
-                "baseline_s": tb,
-                "baseline_ms_per_point": 1000 * tb / args.points,
-                "tool_s": tt,
-                "tool_ms_per_point": 1000 * tt / args.points,
-                "ratio_tool_over_baseline": tt / tb,
-                "peak_rss_mb_after_baseline": mb,
-                "peak_rss_mb_after_tool": peak_mb(),
-            }
-        )
-        print(
-            f"{rows[-1]['case']:28s} baseline {tb:6.2f} s ({rows[-1]['baseline_ms_per_point']:5.1f} ms/pt)"
-            f"  tool {tt:6.2f} s ({rows[-1]['tool_ms_per_point']:5.1f} ms/pt)  ratio {tt / tb:5.2f}"
-            f"  peak {peak_mb():6.0f} MB"
-        )
+    curves = list(CURVES) if "curve" in cases else []
+    if "slow" in cases:
+        curves.append(("N2", "HF/cc-pVTZ", 1))
+    for species, level, mult in curves:
+        tb, _ = timed(baseline, species, level, mult, r)
+        tt, _ = timed(tool, species, level, mult, r)
+        rows.append(row(f"curve {species} {level}", "hand loop", tb, "lcao.curve", tt, args.points, peak_mb()))
+    with tempfile.TemporaryDirectory() as tmp:
+        if "series" in cases:
+            run_series_case(rows, tmp)
+        if "shell" in cases:
+            run_shell_case(rows, tmp)
     os.makedirs(os.path.dirname(args.out), exist_ok=True)
     with open(args.out, "w") as fh:
-        json.dump({"python": sys.version, "threads": 1, "cases": rows}, fh, indent=2)
+        json.dump({"python": sys.version, "cpu_count": os.cpu_count(), "cases": rows}, fh, indent=2)
     print(f"wrote {args.out}")
     return 0
 

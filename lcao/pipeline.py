@@ -94,6 +94,8 @@ def resolve_inputs(species, level, grid=None, multiplicity=None, charge=None, po
     if multiplicity is not None:
         sp.check_multiplicity(multiplicity)
         lv.resolved_reference(multiplicity)
+    elif lv.reference == "RHF":
+        lv.resolved_reference(sp.lowest_multiplicity())  # RHF of an odd electron count is refused here
     gr = grid if grid is not None else default_grid(*sp.z, **({"points": points} if points else {}))
     _check_electrons_fit(sp, lv)
     return sp, lv, gr
@@ -154,6 +156,8 @@ def curve(
     from .masses import resolve_isotopes
 
     sp, lv, gr = resolve_inputs(species, level, grid, multiplicity, charge, points)
+    if multiplicity is None and lv.reference == "RHF":
+        multiplicity = sp.lowest_multiplicity()  # RHF has one choice; resolve_inputs refused odd counts
     iso = resolve_isotopes(sp.atoms, isotopes)
     own = store is None
     st = MemoryStore() if own else store

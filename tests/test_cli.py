@@ -76,6 +76,11 @@ def test_unwritable_output_folder(tmp_path, capsys):
     code = run(tmp_path, "curve", "H2", "--level", "HF/STO-3G", "--out", str(blocker / "sub"))
     assert code == 2
     assert str(blocker) in capsys.readouterr().err
+    assert not (tmp_path / "store.sqlite").exists()
+    # RHF for an odd electron count is refused before anything is computed
+    assert run(tmp_path, "curve", "NO", "--level", "RHF/STO-3G", "--out", str(tmp_path / "x")) == 2
+    assert "RHF needs a closed-shell singlet" in capsys.readouterr().err
+    assert not (tmp_path / "x").exists()
 
 
 def test_help_and_no_command(capsys):

@@ -136,3 +136,22 @@ def test_series_command_writes_table_and_files(tmp_path, capsys):
     assert "H2" in out and "LiH" in out and "handbook" in out
     for name in ("series.csv", "series.json", "series-re.png", "series-bond-orders.png", "series-levels.png"):
         assert (tmp_path / "o" / name).exists()
+
+
+def test_members_on_two_workers_match_one_and_store_each_point_once(tmp_path):
+    from lcao.parallel import run_parallel
+
+    members = members_from(["H2", "LiH"], [parse_level("HF/STO-3G")], points=12)
+    with Store(tmp_path / "one.sqlite") as st:
+        serial = run_series(members, st)
+        n_serial = st.count_points()
+    rows = run_parallel(members, str(tmp_path / "two.sqlite"), 2)
+    with Store(tmp_path / "two.sqlite") as st:
+        assert st.count_points() == n_serial
+    for a, b in zip(serial, rows):
+        assert a.species == b.species
+        assert a.values["re_angstrom"] == pytest.approx(b.values["re_angstrom"], abs=1e-9)
+    again = run_parallel(members, str(tmp_path / "two.sqlite"), 2)  # everything reused
+    with Store(tmp_path / "two.sqlite") as st:
+        assert st.count_points() == n_serial
+    assert [r.values["we_cm1"] for r in again] == pytest.approx([r.values["we_cm1"] for r in rows], abs=1e-9)

@@ -30,6 +30,29 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
     add_store_options(p)
     p.add_argument("--out", metavar="DIR", default="lcao-results/series", help="output folder (default lcao-results/series)")
     p.add_argument("--no-plots", action="store_true", help="skip the figures")
+    add_workers_option(p)
+
+
+def add_workers_option(p) -> None:
+    p.add_argument("--workers", type=int, metavar="N",
+                   help="worker processes for the members (default: the CPU count; 1 runs everything in this process)")
+
+
+def _members_run(members, store_path, args, progress):
+    """Run members in this process or on worker processes (one writer of the store either way)."""
+    from ..errors import InputError
+    from ..parallel import default_workers, run_parallel
+    from ..series import run_series
+    from ..store import Store
+
+    workers = args.workers if args.workers is not None else default_workers()
+    if workers < 1:
+        raise InputError(f"--workers must be at least 1, got {workers}")
+    if workers == 1 or len(members) == 1:
+        with Store(store_path, reuse=not args.recompute) as store:
+            return run_series(members, store, progress)
+    return run_parallel(members, store_path, workers, reuse=not args.recompute,
+                        on_done=lambda m: progress(m.species.label, 0.0))
 
 
 def add_run_arguments(p: argparse.ArgumentParser) -> None:
@@ -37,6 +60,7 @@ def add_run_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--store", metavar="FILE", help="override the study's results store")
     p.add_argument("--recompute", action="store_true", help="ignore stored points: compute afresh and replace them")
     p.add_argument("--no-plots", action="store_true", help="skip the figures")
+    add_workers_option(p)
 
 
 def write_series(rows, out: str, title: str, plots: bool) -> list[str]:
@@ -79,9 +103,8 @@ def run(args) -> int:
     from ..errors import InputError
     from ..export.io import check_out_dir
     from ..levels import parse_level
-    from ..series import by_electron_count, members_from, parse_charge_range, run_series
+    from ..series import by_electron_count, members_from, parse_charge_range
     from ..species import parse_species
-    from ..store import Store
 
     cart = None if args.d_shells is None else args.d_shells == "cartesian"
     levels = [parse_level(t, cart) for t in (args.level or ["HF/6-31G"])]
@@ -106,10 +129,11 @@ def run(args) -> int:
 
     out = check_out_dir(args.out)
     check_store_path(args.store)
+    if args.workers is not None and args.workers < 1:
+        raise InputError(f"--workers must be at least 1, got {args.workers}")
     progress = Progress(not args.quiet, "series")
     try:
-        with Store(args.store, reuse=not args.recompute) as store:
-            rows = run_series(members, store, progress)
+        rows = _members_run(members, args.store, args, progress)
     finally:
         progress.close()
     title = "series: " + ", ".join(dict.fromkeys(m.species.label for m in members)) + " at " + ", ".join(lv.text for lv in levels)
@@ -121,9 +145,9 @@ def _slug(name: str) -> str:
 
 
 def run_study(args) -> int:
+    from ..errors import InputError
     from ..export.io import check_out_dir
-    from ..series import run_series
-    from ..store import Store, check_store_path
+    from ..store import check_store_path
     from ..study import load_study
 
     study = load_study(args.study)
@@ -133,17 +157,18 @@ def run_study(args) -> int:
         check_out_dir(os.path.dirname(os.path.abspath(store_path)))  # the store's folder will be made
     else:
         check_store_path(store_path)
+    if args.workers is not None and args.workers < 1:
+        raise InputError(f"--workers must be at least 1, got {args.workers}")
     status = 0
     outs = {g.name: os.path.join(out, _slug(g.name)) for g in study.groups}
     progress = Progress(not args.quiet, "study")
     try:
         os.makedirs(os.path.dirname(os.path.abspath(store_path)), exist_ok=True)
-        with Store(store_path, reuse=not args.recompute) as store:
-            for g in study.groups:  # each group's outputs are written as soon as it is done
-                rows = run_series(g.members, store, progress)
-                title = f"{study.title}: {g.name}" if study.title else g.name
-                status = max(status, _report(rows, title, write_series(rows, outs[g.name], title, not args.no_plots)))
-                print()
+        for g in study.groups:  # each group's outputs are written as soon as it is done
+            rows = _members_run(g.members, store_path, args, progress)
+            title = f"{study.title}: {g.name}" if study.title else g.name
+            status = max(status, _report(rows, title, write_series(rows, outs[g.name], title, not args.no_plots)))
+            print()
     finally:
         progress.close()
     print(f"study {study.path}: results in {out}, store {store_path}", file=sys.stdout)

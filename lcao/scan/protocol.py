@@ -217,7 +217,7 @@ def probe_multiplicities(species, level, candidates, store, r_bohr, progress=Non
     computed = reused = 0
     for mult in candidates:
         runner = _Runner(species, mult, level, store, progress)
-        ref = level.resolved_reference(mult) if not (level.reference == "RHF" and mult != 1) else "ROHF"
+        ref = level.resolved_reference(mult)
         if ref == "RHF":
             p = runner.point("probe/restricted", r_bohr, "RHF", None, check_uhf=level.reference == "auto")
             e, conv = p.energy, p.converged

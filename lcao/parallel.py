@@ -1,0 +1,131 @@
+"""Series members spread over worker processes on one machine, with one writer of the store.
+
+Each worker computes whole members. It reads stored points through its own
+read-only connection and sends every point it computes back over a queue; a
+writer thread in the parent commits each point to the store as it arrives, so
+the store has a single writer and a killed run still loses at most the points
+in flight. Workers run PySCF with one OpenMP thread each (no
+oversubscription); the worker count defaults to the CPU count and is capped
+by the number of members.
+"""
+
+from __future__ import annotations
+
+import logging
+import multiprocessing as mp
+import os
+import threading
+from concurrent.futures import ProcessPoolExecutor
+
+log = logging.getLogger(__name__)
+
+_QUEUE = None
+_STORE = None
+
+
+def default_workers() -> int:
+    return max(1, os.cpu_count() or 1)
+
+
+class WorkerStore:
+    """The store as a worker sees it: reads from the file, writes go to the parent's writer."""
+
+    def __init__(self, path: str, queue, reuse: bool):
+        from .store import Store
+
+        self.ro = Store(path, read_only=True)
+        self.queue = queue
+        self.reuse = reuse
+        self.local: dict = {}
+        self.local_atoms: dict = {}
+
+    def get_point(self, species, multiplicity, level, sweep, r_bohr):
+        from .store import Store
+
+        key = Store._point_key(species, multiplicity, level, sweep, r_bohr)
+        if key in self.local:
+            return self.local[key]
+        return self.ro.get_point(species, multiplicity, level, sweep, r_bohr) if self.reuse else None
+
+    def put_point(self, species, multiplicity, level, sweep, point) -> bool:
+        from .store import Store
+
+        self.local[Store._point_key(species, multiplicity, level, sweep, point.r_bohr)] = point
+        self.queue.put(("point", species, multiplicity, level, sweep, point))
+        return True
+
+    def get_atom(self, symbol, charge, spin, level):
+        key = (symbol, charge, spin, level.key())
+        if key in self.local_atoms:
+            return self.local_atoms[key]
+        return self.ro.get_atom(symbol, charge, spin, level) if self.reuse else None
+
+    def put_atom(self, state, level) -> None:
+        self.local_atoms[(state.symbol, state.charge, state.spin, level.key())] = state
+        self.queue.put(("atom", state, level))
+
+    def close(self):
+        self.ro.close()
+
+
+def _init(queue, path, reuse):
+    global _QUEUE, _STORE
+    os.environ["OMP_NUM_THREADS"] = "1"
+    from pyscf import lib
+
+    lib.num_threads(1)
+    _QUEUE = queue
+    _STORE = WorkerStore(path, queue, reuse)
+
+
+def _work(member):
+    from .series import run_member
+
+    return run_member(member, _STORE)
+
+
+def _writer(path: str, queue, reuse: bool, errors: list):
+    from .store import Store
+
+    try:
+        with Store(path, reuse=reuse) as st:
+            while True:
+                item = queue.get()
+                if item is None:
+                    return
+                if item[0] == "point":
+                    _, species, mult, level, sweep, point = item
+                    st.put_point(species, mult, level, sweep, point)
+                else:
+                    _, state, level = item
+                    st.put_atom(state, level)
+    except Exception as exc:  # reported by run_parallel; nothing else writes the store
+        errors.append(exc)
+
+
+def run_parallel(members, store_path: str, workers: int, reuse: bool = True, on_done=None):
+    """Run series members on ``workers`` processes; returns the rows in member order."""
+    from .store import Store
+
+    Store(store_path, reuse=reuse).close()  # create it (schema) before the workers open it read-only
+    ctx = mp.get_context("spawn")
+    queue = ctx.Queue()
+    errors: list = []
+    writer = threading.Thread(target=_writer, args=(store_path, queue, reuse, errors), daemon=True)
+    writer.start()
+    rows = [None] * len(members)
+    try:
+        with ProcessPoolExecutor(max_workers=min(workers, len(members)), mp_context=ctx, initializer=_init,
+                                 initargs=(queue, store_path, reuse)) as pool:
+            futures = {pool.submit(_work, m): i for i, m in enumerate(members)}
+            for fut in futures:
+                i = futures[fut]
+                rows[i] = fut.result()
+                if on_done is not None:
+                    on_done(members[i])
+    finally:
+        queue.put(None)
+        writer.join()
+    if errors:
+        raise errors[0]
+    return tuple(rows)
