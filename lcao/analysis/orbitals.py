@@ -332,17 +332,31 @@ def valence_overlaps(mol, s) -> dict:
 
 
 
+#: largest change of the density on rebuilding a stored point's orbitals before it is re-converged
+REBUILD_TOL = 1e-5
+
+
 def analyse_stored(species, multiplicity, level, reference, r_bohr, dm) -> OrbitalAnalysis:
-    """Re-converge a stored point from its density (a cycle or two) and analyse it."""
-    from ..scan.scf import build_molecule, solve
+    """Analyse a stored point: its orbitals from one diagonalisation of the Fock matrix of its
+    converged density (re-converged only if that does not reproduce the density)."""
+    from ..scan.scf import build_molecule, make_scf, solve
 
     mol = build_molecule(species.atoms, r_bohr, level, species.charge, multiplicity - 1)
     dm = np.asarray(dm)
     if reference == "RHF" and dm.ndim == 3:
         dm = dm.sum(axis=0)
-    sol = solve(mol, reference, dm, follow_stability=False)
-    if not sol.converged:
-        from ..errors import CalculationError
+    mf = make_scf(mol, reference)
+    fock = mf.get_fock(dm=dm)
+    mf.mo_energy, mf.mo_coeff = mf.eig(fock, mf.get_ovlp())
+    mf.mo_occ = mf.get_occ(mf.mo_energy, mf.mo_coeff)
+    if np.max(np.abs(np.asarray(mf.make_rdm1()) - dm)) > REBUILD_TOL:
+        sol = solve(mol, reference, dm, follow_stability=False)
+        if not sol.converged:
+            from ..errors import CalculationError
 
-        raise CalculationError(f"the stored point at {r_bohr:.4f} bohr did not re-converge for analysis")
-    return analyse(sol.scf)
+            raise CalculationError(f"the stored point at {r_bohr:.4f} bohr did not re-converge for analysis")
+        mf = sol.scf
+    else:
+        mf.e_tot = mf.energy_tot(dm=dm)
+        mf.converged = True
+    return analyse(mf)

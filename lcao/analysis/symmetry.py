@@ -50,8 +50,25 @@ def _irrep_kind(name: str) -> tuple[int, str | None]:
     return lam, (m.group(3) or None)
 
 
+_CACHE: dict = {}
+
+
 def symmetry_basis(mol) -> SymmetryBasis:
-    """Build the adapted basis from a symmetric copy of ``mol`` (same AOs)."""
+    """The adapted basis of ``mol`` with the metric of its current overlap matrix.
+
+    The adapted combinations of a linear molecule do not depend on the bond
+    distance, so they are built once per (atoms, basis, d shells) from a
+    symmetric copy and cached; the projector metric uses this geometry's overlap.
+    """
+    key = (mol.atom_symbol(0), mol.atom_symbol(1), str(mol.basis), bool(mol.cart), mol.nao)
+    if key not in _CACHE:
+        _CACHE[key] = _adapted_combinations(mol)
+    blocks, homo = _CACHE[key]
+    s = mol.intor("int1e_ovlp")
+    return SymmetryBasis({k: (u, np.linalg.inv(u.T @ s @ u)) for k, u in blocks.items()}, homo)
+
+
+def _adapted_combinations(mol):
     sym = mol.copy()
     sym.symmetry = True
     sym.verbose = 0
@@ -60,17 +77,11 @@ def symmetry_basis(mol) -> SymmetryBasis:
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         sym.build(dump_input=False, parse_arg=False)
-    s = mol.intor("int1e_ovlp")
     blocks: dict = {}
     for name, u in zip(sym.irrep_name, sym.symm_orb):
-        key = _irrep_kind(name)
-        blocks.setdefault(key, []).append(u)
-    groups = {}
-    for key, us in blocks.items():
-        u = np.hstack(us)
-        groups[key] = (u, np.linalg.inv(u.T @ s @ u))
+        blocks.setdefault(_irrep_kind(name), []).append(u)
     homo = mol.atom_symbol(0) == mol.atom_symbol(1) and sym.topgroup == "Dooh"
-    return SymmetryBasis(groups, homo)
+    return {k: np.hstack(us) for k, us in blocks.items()}, homo
 
 
 def symmetry_weights(c, s, basis: SymmetryBasis) -> dict:
