@@ -46,7 +46,6 @@ def test_equilibrium_distance_matches_cccbdb(species, basis, ref):
 def test_f2_631g_minimum_matches_analytic_gradient():
     """F2 HF/6-31G: no CCCBDB value at hand, so the fitted minimum is checked
     against the root of PySCF's analytic RHF gradient (an independent code path)."""
-    from pyscf import grad  # noqa: F401
     from scipy.optimize import brentq
 
     from lcao.scan.scf import build_molecule, solve

@@ -1,7 +1,6 @@
 """Bad input gets one clear line and writes nothing; faults lose nothing."""
 
 import json
-import os
 import signal
 import sqlite3
 import time

@@ -1,13 +1,12 @@
 """Property-based tests (hypothesis) of the parsers, the study loader, unit conversions and the fits."""
 
-import math
 
 import numpy as np
 import pytest
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 
-from lcao.errors import GridError, InputError, SpeciesError
+from lcao.errors import GridError, SpeciesError
 from lcao.fit.morse import fit_morse, morse
 from lcao.scan.grid import range_grid
 from lcao.species import Species, parse_species

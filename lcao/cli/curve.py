@@ -136,7 +136,8 @@ def check_outputs(args, out):
 
 def run(args) -> int:
     from ..export import write_outputs
-    from ..pipeline import curve, resolve_inputs, summary_lines
+    from ..pipeline import curve, resolve_inputs
+    from ..report import summary_lines
     from ..species import parse_species
 
     species = parse_species(args.species, args.charge)

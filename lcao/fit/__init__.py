@@ -36,7 +36,7 @@ import numpy as np
 from ..errors import FitError
 from ..units import HARTREE_CM1, HARTREE_EV, bohr_to_angstrom
 from .local import LocalFit, dunham_constants, local_fit
-from .morse import MorseFit, fit_morse, morse, morse_levels
+from .morse import MorseFit, fit_morse, morse_levels
 from .vibration import VibrationalLevels, solve_levels
 
 log = logging.getLogger(__name__)
