@@ -18,9 +18,10 @@ def summary_lines(result: CurveResult) -> list[str]:
     ]
     if result.candidates:
         lines.append(
-            "  multiplicities tried at {:.3f} A: ".format(result.candidates[0].as_dict()["r_angstrom"])
+            "  multiplicities tried (lowest energy over the probe distances): "
             + ", ".join(
-                f"{t.multiplicity}: {t.energy_hartree:.6f} Eh" if math.isfinite(t.energy_hartree) else f"{t.multiplicity}: failed"
+                f"{t.multiplicity}: {t.energy_hartree:.6f} Eh at {t.as_dict()['r_angstrom']:.3f} A"
+                if math.isfinite(t.energy_hartree) else f"{t.multiplicity}: failed"
                 for t in result.candidates
             )
         )

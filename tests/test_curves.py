@@ -140,3 +140,19 @@ def test_outlier_detection_flags_a_point_on_a_higher_state():
     assert outlier_reasons(r, e, np.ones(15, bool)) == [None] * 15
     reasons = outlier_reasons(r, bad, np.ones(15, bool))
     assert reasons[7] is not None and sum(x is not None for x in reasons) == 1
+
+
+def test_ionic_molecule_gets_its_singlet():
+    # LiF X 1Sigma+ (Huber & Herzberg 1979). The sum of covalent radii (1.85 A) is far beyond the ionic
+    # bond (1.56 A), where the triplet lies lower at HF/STO-3G; probing shorter distances too finds the singlet.
+    res = lcao.curve("LiF", "HF/STO-3G", range_grid(1.3, 2.2, 6), fit=False, analyse_points=False)
+    assert res.multiplicity == 1
+    assert len({t.r_bohr for t in res.candidates}) >= 1
+
+
+def test_spin_contaminated_well_is_reported():
+    # UHF N2+ in STO-3G: <S^2> far above 0.75 at the minimum (what the method gives; the usual 10 % rule)
+    res = lcao.curve("N2+", "HF/STO-3G", range_grid(0.9, 2.5, 12), fit=False, analyse_points=False)
+    assert any("spin contamination" in n for n in res.scan.notes)
+    clean = lcao.curve("O2", "HF/STO-3G", range_grid(1.0, 2.0, 8), fit=False, analyse_points=False)
+    assert not any("spin contamination" in n for n in clean.scan.notes)

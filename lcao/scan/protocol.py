@@ -39,6 +39,9 @@ log = logging.getLogger(__name__)
 
 #: Unrestricted energies must lie this far below restricted ones to count as a separate branch.
 BRANCH_SPLIT_HARTREE = 1e-7
+#: <S^2> above S(S+1) by more than this fraction (of S(S+1), at least of 0.75) at the lowest point
+#: is reported as spin contamination (the usual 10 % rule of thumb)
+SPIN_CONTAMINATION = 0.10
 
 
 @dataclass(frozen=True)
@@ -207,29 +210,43 @@ def _flag_outliers(points):
     return out
 
 
+#: probe distances for the multiplicity choice, as fractions of the expected bond length: the sum
+#: of covalent radii overestimates multiple and ionic bonds (N2 1.42 A against 1.10 A, LiF 1.85 against 1.56)
+PROBE_FACTORS = (0.8, 0.9, 1.0)
+
+
 def probe_multiplicities(species, level, candidates, store, r_bohr, progress=None):
-    """Energy of each candidate multiplicity at ``r_bohr`` (lowest solution found).
+    """Lowest energy of each candidate multiplicity over the probe distances PROBE_FACTORS x ``r_bohr``.
 
     Returns:
-        (trials, computed, reused): the trials and the points computed now or reused.
+        (trials, computed, reused): one trial per multiplicity (its lowest energy and where), and
+        the points computed now or reused.
     """
     trials = []
     computed = reused = 0
     for mult in candidates:
         runner = _Runner(species, mult, level, store, progress)
-        ref = level.resolved_reference(mult)
-        if ref == "RHF":
-            p = runner.point("probe/restricted", r_bohr, "RHF", None, check_uhf=level.reference == "auto")
-            e, conv = p.energy, p.converged
-            if p.extra.get("uhf_unstable"):
-                dm = instability_start(runner, r_bohr, p)
-                q = runner.point("probe/unrestricted", r_bohr, "UHF", dm)
-                if q.converged and (not conv or q.energy < e):
-                    e, conv, ref = q.energy, True, "UHF"
-        else:
-            p = runner.point(f"probe/{ref.lower()}", r_bohr, ref, None)
-            e, conv = p.energy, p.converged
-        trials.append(MultiplicityTrial(mult, e, conv, ref, r_bohr))
+        best = None
+        for factor in PROBE_FACTORS:
+            r = r_bohr * factor
+            ref = level.resolved_reference(mult)
+            if ref == "RHF":
+                p = runner.point("probe/restricted", r, "RHF", None, check_uhf=level.reference == "auto")
+                e, conv = p.energy, p.converged
+                if p.extra.get("uhf_unstable"):
+                    dm = instability_start(runner, r, p)
+                    q = runner.point("probe/unrestricted", r, "UHF", dm)
+                    if q.converged and (not conv or q.energy < e):
+                        e, conv, ref = q.energy, True, "UHF"
+            else:
+                p = runner.point(f"probe/{ref.lower()}", r, ref, None)
+                e, conv = p.energy, p.converged
+            trial = MultiplicityTrial(mult, e, conv, ref, r)
+            if conv and math.isfinite(e) and (best is None or not best.converged or e < best.energy_hartree):
+                best = trial
+            elif best is None:
+                best = trial
+        trials.append(best)
         computed += runner.computed
         reused += runner.reused
     return tuple(trials), computed, reused
@@ -350,6 +367,15 @@ def run_protocol(species, multiplicity, level, grid: Grid, store, progress=None)
             f"a single determinant of multiplicity {multiplicity} separates into atoms in spin states"
             f" {frag_limit - limit.energy_hartree:.4f} Eh above the ground-state atoms"
         )
+    if trusted:
+        low = min(trusted, key=lambda p: p.energy_hartree)
+        exact = (multiplicity - 1) / 2 * ((multiplicity - 1) / 2 + 1)
+        if low.s2 is not None and low.s2 - exact > SPIN_CONTAMINATION * max(exact, 0.75):
+            notes.append(
+                f"spin contamination at the lowest point ({low.r_angstrom:.3f} A): <S^2> = {low.s2:.3f} against"
+                f" S(S+1) = {exact:.3f}; the unrestricted well mixes in higher spin states, so its minimum and"
+                " constants are doubtful (compare ROHF or a larger basis)"
+            )
     n_flag = sum(1 for p in final if not p.trusted)
     if n_flag:
         notes.append(f"{n_flag} of {n} points are flagged and kept out of every fit")
