@@ -27,3 +27,15 @@ def count_rows(path):
             con.close()
     except sqlite3.OperationalError:
         return 0
+
+
+def store_from_newer_schema(path, ahead=1):
+    """An lcao store whose schema version is ``ahead`` versions newer than this lcao reads."""
+    from lcao.store import SCHEMA_VERSION, Store
+
+    Store(path).close()
+    con = sqlite3.connect(path)
+    con.execute("UPDATE meta SET value=? WHERE key='schema_version'", (str(SCHEMA_VERSION + ahead),))
+    con.commit()
+    con.close()
+    return path

@@ -8,8 +8,7 @@ import time
 import pytest
 
 from lcao.cli import main
-from helpers import ROOT, count_rows, spawn
-from lcao.store import SCHEMA_VERSION, Store
+from helpers import ROOT, count_rows, spawn, store_from_newer_schema
 
 
 def run(tmp_path, *args):
@@ -50,12 +49,7 @@ def test_store_that_is_not_a_store_or_newer(tmp_path, capsys):
     assert main(["curve", "H2", "--level", "HF/STO-3G", "--store", str(bogus), "--out", str(out), "-q"]) == 2
     assert "not an lcao store" in capsys.readouterr().err
     assert bogus.read_bytes() == before and not out.exists()
-    newer = tmp_path / "newer.sqlite"
-    Store(newer).close()
-    con = sqlite3.connect(newer)
-    con.execute("UPDATE meta SET value=? WHERE key='schema_version'", (str(SCHEMA_VERSION + 3),))
-    con.commit()
-    con.close()
+    newer = store_from_newer_schema(tmp_path / "newer.sqlite", ahead=3)
     assert main(["curve", "H2", "--level", "HF/STO-3G", "--store", str(newer), "--out", str(out), "-q"]) == 2
     assert "newer" in capsys.readouterr().err and not out.exists()
 

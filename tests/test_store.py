@@ -9,9 +9,9 @@ import time
 import pytest
 
 from lcao.errors import StoreError
-from lcao.store import SCHEMA_VERSION, Store
+from lcao.store import Store
 
-from helpers import count_rows, spawn
+from helpers import count_rows, spawn, store_from_newer_schema
 
 CURVE = ["curve", "NO", "--level", "HF/6-31G", "--from", "0.9", "--to", "3.5", "--points", "24", "-q"]
 
@@ -78,11 +78,6 @@ def test_not_a_store(tmp_path):
 
 
 def test_store_from_a_newer_schema_is_refused(tmp_path):
-    path = tmp_path / "new.sqlite"
-    Store(path).close()
-    con = sqlite3.connect(path)
-    con.execute("UPDATE meta SET value=? WHERE key='schema_version'", (str(SCHEMA_VERSION + 1),))
-    con.commit()
-    con.close()
+    path = store_from_newer_schema(tmp_path / "new.sqlite")
     with pytest.raises(StoreError, match="newer"):
         Store(path)
