@@ -1,6 +1,7 @@
 """Bad input gets one clear line and writes nothing; faults lose nothing."""
 
 import json
+import os
 import signal
 import sqlite3
 import time
@@ -156,3 +157,27 @@ def test_security_basics():
     assert "import pickle" not in src and "pickle." not in src
     for stmt in re.findall(r'execute\(\s*f?"([^"]*)', src):
         assert "{" not in stmt or stmt.startswith("{verb}"), stmt
+
+
+def test_ctrl_c_during_a_parallel_series(tmp_path):
+    """Ctrl-C reaches the whole foreground process group (parent and workers): a clean stop, points kept."""
+    import subprocess
+    import sys
+
+    env = dict(os.environ, OMP_NUM_THREADS="1", PYTHONPATH=ROOT)
+    store = str(tmp_path / "s.sqlite")
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "lcao", "series", "N2", "CO", "NO", "--level", "HF/STO-3G", "--workers", "2", "--store", store,
+         "--out", str(tmp_path / "o"), "-q", "--no-plots"],
+        env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE, start_new_session=True,
+    )
+    deadline = time.time() + 120
+    while count_rows(store) < 10 and time.time() < deadline and proc.poll() is None:
+        time.sleep(0.05)
+    assert proc.poll() is None
+    os.killpg(proc.pid, signal.SIGINT)
+    _, err = proc.communicate(timeout=60)
+    assert proc.returncode == 130
+    assert "Run the same command again to resume" in err.decode()
+    assert count_rows(store) >= 10
+    assert not (tmp_path / "o" / "series.json").exists()
