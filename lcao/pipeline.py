@@ -289,6 +289,7 @@ def orbitals(
     charge: int | None = None,
     grid: Grid | None = None,
     store=None,
+    base: CurveResult | None = None,
 ) -> OrbitalsResult:
     """Orbital characters, bond orders and spin at one distance.
 
@@ -299,6 +300,8 @@ def orbitals(
         branch: 'well' (the restricted solution for a closed-shell singlet under
             HF, as the curve fit uses it; otherwise the lowest), 'lowest',
             'restricted' or 'unrestricted'.
+        base: with ``at_minimum``, a curve already computed for this species and
+            level (its fit gives r_e); otherwise the curve is computed here.
     """
     from .errors import FitError
     from .store import MemoryStore
@@ -312,14 +315,15 @@ def orbitals(
     own = store is None
     st = MemoryStore() if own else store
     try:
-        base = None
         if at_minimum:
-            base = curve(sp, lv, grid, multiplicity=multiplicity, store=st, analyse_points=False)
+            if base is None:
+                base = curve(sp, lv, grid, multiplicity=multiplicity, store=st, analyse_points=False)
             if base.fit is None:
                 raise FitError(f"no curve minimum to analyse: {base.fit_error}")
             r_bohr = base.fit.local.re
             multiplicity = base.multiplicity
         else:
+            base = None
             r_bohr = float(angstrom_to_bohr(r_angstrom))
         one = curve(sp, lv, Grid((r_bohr,), "single point"), multiplicity=multiplicity, store=st, fit=False, analyse_points=False)
         scan = one.scan

@@ -156,7 +156,7 @@ def run_member(member: Member, store, progress=None) -> SeriesRow:
     values["well_branch"] = f["well_branch"]
     levels = ()
     try:
-        orb = orbitals(sp, lv, at_minimum=True, multiplicity=res.multiplicity, grid=grid, store=store)
+        orb = orbitals(sp, lv, at_minimum=True, multiplicity=res.multiplicity, grid=grid, store=store, base=res)
         a = orb.analysis
         bo = a.bond_orders()
         values.update(

@@ -96,7 +96,7 @@ def _computed_constants(species, level, multiplicity, grid, store, isotopes, poi
     f = res.fit
     c = f.constants
     levels = tuple(g * HARTREE_CM1 for g in f.levels.energies) if f.levels is not None else ()
-    orb = orbitals(res.species, res.level, at_minimum=True, multiplicity=res.multiplicity, grid=grid, store=store)
+    orb = orbitals(res.species, res.level, at_minimum=True, multiplicity=res.multiplicity, grid=grid, store=store, base=res)
     g_el, g_why = degeneracy_from_orbitals(orb.analysis, res.multiplicity)
     vals = {
         "re": f.local.re,

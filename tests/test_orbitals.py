@@ -102,6 +102,8 @@ def test_sto3g_h2_overlap_and_slater_formula():
 
 
 def test_heteronuclear_labels_and_compositions():
+    # common practice: g/u labels exist only for homonuclear species (C_inf_v has no inversion centre);
+    # Mulliken gross populations of a normalised MO sum to one electron
     a = analysed("CO", "6-31G", 1.128, 1)
     kinds = {m.kind for m in a.orbitals if m.kind}
     assert kinds <= {"sigma", "pi", "delta"} and "pi" in kinds
@@ -130,6 +132,7 @@ def test_overlap_population_character_is_reported_beside_the_formal_class():
 
 
 def test_valence_names():
+    # the valence names of the period-2 homonuclear pattern (common practice)
     a = analysed("N2", "STO-3G", 1.098, 1)
     names = {m.label: m.valence_name for m in a.orbitals}
     assert names["2sigma_g"] == "sigma 2s" and names["2sigma_u"] == "sigma* 2s"

@@ -162,10 +162,9 @@ def run(args) -> int:
         progress.close()
     paths = write_outputs(result, out)
     if not args.no_plots:
-        from ..plots import CURVE_FIGURES, save_figure
+        from ..plots import CURVE_FIGURES, save_figures
 
-        for stem, fn in CURVE_FIGURES.items():
-            paths += save_figure(fn(result), os.path.join(out, stem))
+        paths += save_figures(CURVE_FIGURES, result, out)
     for line in summary_lines(result):
         print(line)
     print(f"  wrote: {', '.join(paths)}")

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import argparse
-import os
 
 from .curve import (
     Progress,
@@ -117,10 +116,9 @@ def run(args) -> int:
         progress.close()
     paths = write_outputs(res, out, ORBITAL_WRITERS)
     if not args.no_plots:
-        from ..plots import ORBITAL_FIGURES, save_figure
+        from ..plots import ORBITAL_FIGURES, save_figures
 
-        for stem, fn in ORBITAL_FIGURES.items():
-            paths += save_figure(fn(res), os.path.join(out, stem))
+        paths += save_figures(ORBITAL_FIGURES, res, out)
     for line in table_lines(res):
         print(line)
     print(f"  wrote: {', '.join(paths)}")

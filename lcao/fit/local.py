@@ -22,6 +22,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..errors import FitError
+from ..units import bohr_to_angstrom
 
 #: Points nearest the minimum used by the local fit, and by the alternative
 #: fit whose spread estimates the truncation error.
@@ -99,7 +100,7 @@ def local_fit(r, e) -> LocalFit:
     if i == 0 or i == len(r) - 1:
         side = "shortest" if i == 0 else "longest"
         raise FitError(
-            f"the lowest energy is at the {side} distance ({_ang(r[i]):.3f} A): the grid misses the minimum"
+            f"the lowest energy is at the {side} distance ({float(bohr_to_angstrom(r[i])):.3f} A): the grid misses the minimum"
         )
     fits = []
     for npts in (LOCAL_POINTS, ALT_POINTS):
@@ -122,12 +123,6 @@ def local_fit(r, e) -> LocalFit:
         r_window=(float(r[sel][0]), float(r[sel][-1])),
         rms=rms,
     )
-
-
-def _ang(r):
-    from ..units import bohr_to_angstrom
-
-    return float(bohr_to_angstrom(r))
 
 
 def dunham_constants(re: float, k: float, c3: float, c4: float, mu: float) -> dict:

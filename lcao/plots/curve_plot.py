@@ -95,3 +95,11 @@ def save_figure(ax, path_stem: str) -> list[str]:
         atomic_write_bytes(path, buf.getvalue())
         out.append(os.fspath(path))
     return out
+
+
+def save_figures(figures: dict, result, out_dir) -> list[str]:
+    """Draw each registered figure (file stem -> plot function) of ``result`` and save it as PNG and SVG."""
+    paths = []
+    for stem, fn in figures.items():
+        paths += save_figure(fn(result), os.path.join(os.fspath(out_dir), stem))
+    return paths

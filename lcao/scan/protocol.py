@@ -24,7 +24,7 @@ from __future__ import annotations
 
 import logging
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -185,14 +185,8 @@ def _lowest(candidates, n):
             best = min(good, key=lambda p: p.energy_hartree)
         else:
             best = pts[0]
-        out.append(_replace(best, sweep_gap_hartree=gap))
+        out.append(replace(best, sweep_gap_hartree=gap))
     return out
-
-
-def _replace(p: CurvePoint, **kw) -> CurvePoint:
-    from dataclasses import replace
-
-    return replace(p, **kw)
 
 
 def _flag_outliers(points):
@@ -206,7 +200,7 @@ def _flag_outliers(points):
     out = list(points)
     for j, i in enumerate(idx):
         if reasons[j]:
-            out[i] = _replace(points[i], flag=reasons[j])
+            out[i] = replace(points[i], flag=reasons[j])
     return out
 
 
