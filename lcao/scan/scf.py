@@ -15,6 +15,7 @@ from __future__ import annotations
 import logging
 import math
 import warnings
+from collections import OrderedDict
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -71,6 +72,12 @@ def _build(atoms, level, charge: int, spin: int):
     return mol
 
 
+#: molecules already built (basis parsed), per atoms, level, charge and spin: a new distance
+#: only moves the second nucleus (0.02 ms against 0.7 ms for a fresh build)
+_TEMPLATES: OrderedDict = OrderedDict()
+_TEMPLATE_LIMIT = 64
+
+
 def build_molecule(symbols, r_bohr: float, level, charge: int, spin: int):
     """A PySCF molecule on the z axis, no symmetry, no output.
 
@@ -80,7 +87,17 @@ def build_molecule(symbols, r_bohr: float, level, charge: int, spin: int):
         level: :class:`lcao.levels.Level`.
         charge: net charge; spin: 2S (number of alpha minus beta electrons).
     """
-    return _build([(symbols[0], (0.0, 0.0, 0.0)), (symbols[1], (0.0, 0.0, float(r_bohr)))], level, charge, spin)
+    key = (tuple(symbols), level.basis, level.cartesian, charge, spin)
+    tmpl = _TEMPLATES.get(key)
+    if tmpl is None:
+        tmpl = _build([(symbols[0], (0.0, 0.0, 0.0)), (symbols[1], (0.0, 0.0, float(r_bohr)))], level, charge, spin)
+        _TEMPLATES[key] = tmpl
+        if len(_TEMPLATES) > _TEMPLATE_LIMIT:
+            _TEMPLATES.popitem(last=False)
+    else:
+        _TEMPLATES.move_to_end(key)
+    coords = np.array([[0.0, 0.0, 0.0], [0.0, 0.0, float(r_bohr)]])
+    return tmpl.set_geom_(coords, unit="Bohr", inplace=False)
 
 
 def build_atom(symbol: str, level, charge: int, spin: int):
@@ -88,8 +105,56 @@ def build_atom(symbol: str, level, charge: int, spin: int):
     return _build([(symbol, (0.0, 0.0, 0.0))], level, charge, spin)
 
 
+class IntegralCache:
+    """Two-electron integrals (8-fold packed) of recent geometries, bounded in bytes.
+
+    A curve visits most distances several times (restricted and unrestricted branches, the sweeps
+    from both ends, analysis), and the integrals are about 40 % of a warm-started 6-31G SCF. Keys
+    are the geometry and the basis, not the charge or spin.
+    """
+
+    def __init__(self, limit_bytes: int):
+        self.limit_bytes = limit_bytes
+        self._items: OrderedDict = OrderedDict()
+        self.bytes = 0
+        self.hits = 0
+        self.misses = 0
+
+    @staticmethod
+    def key(mol):
+        return (tuple(mol.elements), mol.atom_coords().round(10).tobytes(), bool(mol.cart), repr(mol.basis))
+
+    def get(self, mol) -> np.ndarray:
+        k = self.key(mol)
+        eri = self._items.get(k)
+        if eri is not None:
+            self._items.move_to_end(k)
+            self.hits += 1
+            return eri
+        self.misses += 1
+        eri = mol.intor("int2e", aosym="s8")
+        if eri.nbytes <= self.limit_bytes:
+            self._items[k] = eri
+            self.bytes += eri.nbytes
+            while self.bytes > self.limit_bytes:
+                _, old = self._items.popitem(last=False)
+                self.bytes -= old.nbytes
+        return eri
+
+    def clear(self) -> None:
+        self._items.clear()
+        self.bytes = 0
+
+
+#: about 13 MB per geometry of N2 in cc-pVTZ, 0.1 MB in 6-31G
+INTEGRALS = IntegralCache(160 * 2**20)
+
+
 def make_scf(mol, reference: str):
-    """An SCF object for ``reference`` ('RHF', 'UHF', 'ROHF') with the checkpoint file off."""
+    """An SCF object for ``reference`` ('RHF', 'UHF', 'ROHF') with the checkpoint file off.
+
+    Where PySCF would hold the integrals in memory, they come from :data:`INTEGRALS`.
+    """
     from pyscf import scf
 
     cls = {"RHF": scf.RHF, "UHF": scf.UHF, "ROHF": scf.ROHF}[reference]
@@ -98,6 +163,8 @@ def make_scf(mol, reference: str):
     mf.verbose = 0
     mf.conv_tol = CONV_TOL
     mf.max_cycle = 80
+    if mol.incore_anyway or mf._is_mem_enough():
+        mf._eri = INTEGRALS.get(mol)
     return mf
 
 
@@ -147,10 +214,26 @@ def _ladder(mol, reference: str, dm0):
 
 
 def _stability_step(mf, reference: str):
-    """One internal stability check; returns new orbitals or None when stable."""
+    """One internal stability check; returns new orbitals or None when stable.
+
+    RHF and UHF solutions with the integrals in memory and a small rotation space use the dense
+    Hessian of :mod:`lcao.scan.stability`; the rest PySCF's Davidson iteration.
+    """
     if _rotations(mf) == 0:
         return None
     from pyscf.scf import stability
+
+    from . import stability as dense
+
+    if reference in ("RHF", "UHF") and dense.dense_possible(mf):
+        e, v = dense.internal(mf, reference)
+        if e is None or not e < dense.UNSTABLE_BELOW:
+            return None
+        if reference == "RHF":
+            return stability._rotate_mo(mf.mo_coeff, mf.mo_occ, v)
+        na = int(np.count_nonzero(mf.mo_occ[0] > 0) * np.count_nonzero(mf.mo_occ[0] == 0))
+        return (stability._rotate_mo(mf.mo_coeff[0], mf.mo_occ[0], v[:na]),
+                stability._rotate_mo(mf.mo_coeff[1], mf.mo_occ[1], v[na:]))
 
     from pyscf.lib.exceptions import LinearDependencyError
 
@@ -242,11 +325,20 @@ def unstable_towards_uhf(mf):
         return False, None
     from pyscf.scf import stability
 
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        (mo_a, mo_b), stable = stability.rhf_external(mf, with_symmetry=False, verbose=0, return_status=True, nroots=1)
-    if stable:
-        return False, None
+    from . import stability as dense
+
+    if dense.dense_possible(mf):
+        e, v = dense.rhf_to_uhf(mf)
+        if e is None or not e < dense.UNSTABLE_BELOW:
+            return False, None
+        mo_a, mo_b = stability._rotate_mo(mf.mo_coeff, mf.mo_occ, v), mf.mo_coeff
+    else:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            (mo_a, mo_b), stable = stability.rhf_external(
+                mf, with_symmetry=False, verbose=0, return_status=True, nroots=1)
+        if stable:
+            return False, None
     occ = np.asarray(mf.mo_occ) / 2.0
     dma = (mo_a * occ) @ mo_a.T
     dmb = (mo_b * occ) @ mo_b.T

@@ -1,0 +1,162 @@
+"""Orbital-rotation Hessians of converged Hartree-Fock solutions, built as dense matrices.
+
+PySCF's stability analysis finds the lowest eigenvalue of the orbital Hessian by Davidson
+iteration, one Coulomb and exchange build per iteration (about ten per check). For the small
+rotation spaces of diatomics in split-valence bases the Hessian is cheaper to build from
+molecular-orbital integrals and diagonalise outright. The matrices here are in PySCF's
+scale and layout (vector index ``a * nocc + i``, alpha rotations before beta), so its
+eigenvalue threshold and its orbital rotation apply unchanged; tests/test_stability.py
+compares them element by element with PySCF's own Hessian-vector products.
+
+With D the occupied-occupied and virtual-virtual Fock blocks (D_ai,bj = F_ab d_ij - F_ij d_ab)
+and real orbitals (standard results for the real RHF/UHF orbital Hessian, e.g. Seeger and
+Pople, J. Chem. Phys. 66, 3045 (1977)):
+
+* RHF -> RHF (singlet):   4 [D + 4 (ai|bj) - (ab|ij) - (aj|bi)]
+* RHF -> UHF (triplet):     D - (ab|ij) - (aj|bi)
+* UHF -> UHF, spins s, t: 2 [d_st (D - (ab|ij) - (aj|bi)) + 2 (ai|bj)_st]
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+#: above this many rotations the Davidson iteration is cheaper than a dense diagonalisation
+DENSE_LIMIT = 800
+#: an eigenvalue below this marks an instability (PySCF's threshold, same scale)
+UNSTABLE_BELOW = -1e-5
+
+
+def _unpack(eri, n):
+    from pyscf import ao2mo
+
+    return ao2mo.restore(1, eri, n)
+
+
+def _left(e4, c1, c2):
+    """(pq|rs) -> (xy|rs) with x = c1 on p, y = c2 on q."""
+    n = e4.shape[0]
+    t = (c1.T @ e4.reshape(n, n**3)).reshape(-1, n, n, n)
+    return np.einsum("xqrs,qy->xyrs", t, c2, optimize=True)
+
+
+def _right(left, c3, c4):
+    """(xy|rs) -> (xy|zw) with z = c3 on r, w = c4 on s."""
+    return np.einsum("xyrw,rz->xyzw", left @ c4, c3, optimize=True)
+
+
+def _blocks(e4, co, cv):
+    """(ai|bj) and (ab|ij) from unpacked AO integrals (plain matrix products: several times
+    faster here than PySCF's general transformation)."""
+    aibj = _right(_left(e4, cv, co), cv, co)
+    abij = _right(_left(e4, cv, cv), co, co)
+    return aibj, abij
+
+
+def _fock_diff(f_mo, no, nv):
+    foo, fvv = f_mo[:no, :no], f_mo[no:, no:]
+    return np.einsum("ab,ij->aibj", fvv, np.eye(no)) - np.einsum("ij,ab->aibj", foo, np.eye(nv))
+
+
+def rhf_hessians(mo_coeff, mo_occ, fock_ao, eri):
+    """(singlet, triplet) orbital Hessians of a closed-shell RHF solution.
+
+    Args:
+        mo_coeff: (nao, nmo) orbitals; mo_occ: occupations (2 or 0).
+        fock_ao: the Fock matrix of the solution's density, AO basis.
+        eri: two-electron integrals, 8-fold packed.
+    """
+    occ = np.asarray(mo_occ) > 0
+    co, cv = mo_coeff[:, occ], mo_coeff[:, ~occ]
+    c = np.hstack([co, cv])
+    no, nv = co.shape[1], cv.shape[1]
+    d = _fock_diff(c.T @ fock_ao @ c, no, nv)
+    aibj, abij = _blocks(_unpack(eri, c.shape[0]), co, cv)
+    common = d - abij.transpose(0, 2, 1, 3) - aibj.transpose(0, 3, 2, 1)
+    n = no * nv
+    singlet = 4.0 * (common + 4.0 * aibj).reshape(n, n)
+    triplet = common.reshape(n, n)
+    return singlet, triplet
+
+
+def uhf_hessian(mo_coeff, mo_occ, fock_ao, eri):
+    """Orbital Hessian of a UHF solution (alpha rotations first)."""
+    e4 = _unpack(eri, mo_coeff[0].shape[0])
+    cos, cvs, ds = [], [], []
+    for s in (0, 1):
+        occ = np.asarray(mo_occ[s]) > 0
+        co, cv = mo_coeff[s][:, occ], mo_coeff[s][:, ~occ]
+        c = np.hstack([co, cv])
+        cos.append(co)
+        cvs.append(cv)
+        ds.append(_fock_diff(c.T @ fock_ao[s] @ c, co.shape[1], cv.shape[1]))
+    sizes = [cos[s].shape[1] * cvs[s].shape[1] for s in (0, 1)]
+    h = np.zeros((sum(sizes), sum(sizes)))
+    off = [0, sizes[0]]
+    left_a = None
+    for s in (0, 1):
+        if sizes[s] == 0:
+            continue
+        left = _left(e4, cvs[s], cos[s])
+        if s == 0:
+            left_a = left
+        aibj = _right(left, cvs[s], cos[s])
+        abij = _right(_left(e4, cvs[s], cvs[s]), cos[s], cos[s])
+        blk = 2.0 * (ds[s] - abij.transpose(0, 2, 1, 3) - aibj.transpose(0, 3, 2, 1) + 2.0 * aibj)
+        h[off[s]:off[s] + sizes[s], off[s]:off[s] + sizes[s]] = blk.reshape(sizes[s], sizes[s])
+    if sizes[0] and sizes[1]:
+        x = _right(left_a, cvs[1], cos[1]).reshape(sizes[0], sizes[1])
+        h[: sizes[0], sizes[0]:] = 4.0 * x
+        h[sizes[0]:, : sizes[0]] = 4.0 * x.T
+    return h
+
+
+def lowest_mode(h):
+    """Lowest eigenvalue and its unit eigenvector of a symmetric matrix, or (None, None) when
+    every eigenvalue is at or above :data:`UNSTABLE_BELOW`.
+
+    A Cholesky factorisation of ``h - UNSTABLE_BELOW`` succeeds exactly when the matrix is stable
+    by that threshold, at a small fraction of the cost of the eigenvalue; only an unstable
+    matrix is diagonalised.
+    """
+    from scipy.linalg import LinAlgError, cho_factor, eigh
+
+    try:
+        cho_factor(h - UNSTABLE_BELOW * np.eye(len(h)), check_finite=False)
+        return None, None
+    except LinAlgError:
+        pass
+    w, v = eigh(h, subset_by_index=[0, 0])
+    return float(w[0]), v[:, 0]
+
+
+def dense_possible(mf) -> bool:
+    """Whether the integrals are in memory and the rotation space is small enough."""
+    if getattr(mf, "_eri", None) is None:
+        return False
+    occ = np.asarray(mf.mo_occ)
+    if occ.ndim == 1:
+        n = int((occ > 0).sum() * (occ == 0).sum())
+    else:
+        n = int(sum((o > 0).sum() * (o == 0).sum() for o in occ))
+    return 0 < n <= DENSE_LIMIT
+
+
+def internal(mf, reference: str):
+    """Lowest internal mode of a converged RHF or UHF solution: (eigenvalue, vector), or
+    (None, None) when it is stable (see :func:`lowest_mode`)."""
+    dm = mf.make_rdm1()
+    fock = mf.get_hcore() + mf.get_veff(mf.mol, dm)
+    if reference == "RHF":
+        h, _ = rhf_hessians(mf.mo_coeff, mf.mo_occ, fock, mf._eri)
+    else:
+        h = uhf_hessian(mf.mo_coeff, mf.mo_occ, fock, mf._eri)
+    return lowest_mode(h)
+
+
+def rhf_to_uhf(mf):
+    """Lowest RHF -> UHF (triplet) mode of a converged closed-shell RHF solution, or (None, None)."""
+    dm = mf.make_rdm1()
+    fock = mf.get_hcore() + mf.get_veff(mf.mol, dm)
+    _, h = rhf_hessians(mf.mo_coeff, mf.mo_occ, fock, mf._eri)
+    return lowest_mode(h)

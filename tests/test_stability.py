@@ -1,0 +1,82 @@
+"""The dense orbital Hessians against PySCF's own Hessian-vector products.
+
+The reference is PySCF's stability code (pyscf.scf.stability and pyscf.soscf.newton_ah, 2.14):
+applying its Hessian to every unit vector gives the full matrix, which must equal ours element
+by element, and the stability decisions of both routes must agree.
+"""
+
+import warnings
+
+import numpy as np
+import pytest
+
+from lcao.levels import parse_level
+from lcao.scan import stability as dense
+from lcao.scan.scf import build_molecule, make_scf, solve, unstable_towards_uhf
+
+LEVEL = parse_level("HF/6-31G")
+
+
+def _converged(symbols, r, charge, spin, reference, dm0=None):
+    mol = build_molecule(symbols, r, LEVEL, charge, spin)
+    mf = make_scf(mol, reference)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        mf.kernel(dm0=dm0)
+    assert mf.converged
+    return mf
+
+
+def _fock(mf):
+    return mf.get_hcore() + mf.get_veff(mf.mol, mf.make_rdm1())
+
+
+@pytest.mark.parametrize("r", [2.0, 2.6, 4.0])
+def test_rhf_hessians_equal_pyscf(r):
+    from pyscf.scf import stability
+    from pyscf.soscf import newton_ah
+
+    mf = _converged(("N", "N"), r, 0, 0, "RHF")
+    singlet, triplet = dense.rhf_hessians(mf.mo_coeff, mf.mo_occ, _fock(mf), mf._eri)
+    _, hop, _ = newton_ah.gen_g_hop_rhf(mf, mf.mo_coeff, mf.mo_occ, with_symmetry=False)
+    eye = np.eye(len(singlet))
+    ref_singlet = np.array([hop(x).real * 2 for x in eye])  # rhf_internal's hessian_x
+    _, _, hop_t, _ = stability._gen_hop_rhf_external(mf, with_symmetry=False)
+    ref_triplet = np.array([hop_t(x) for x in eye])
+    assert np.max(np.abs(singlet - ref_singlet)) < 1e-9
+    assert np.max(np.abs(triplet - ref_triplet)) < 1e-9
+
+
+@pytest.mark.parametrize("symbols,charge,spin,r", [(("N", "O"), 0, 1, 2.2), (("N", "N"), 1, 1, 2.1), (("O", "O"), 0, 2, 2.3)])
+def test_uhf_hessian_equals_pyscf(symbols, charge, spin, r):
+    from pyscf.soscf import newton_ah
+
+    mf = _converged(symbols, r, charge, spin, "UHF")
+    h = dense.uhf_hessian(mf.mo_coeff, mf.mo_occ, _fock(mf), mf._eri)
+    _, hop, _ = newton_ah.gen_g_hop_uhf(mf, mf.mo_coeff, mf.mo_occ, with_symmetry=False)
+    ref = np.array([hop(x).real * 2 for x in np.eye(len(h))])  # uhf_internal's hessian_x
+    assert np.max(np.abs(h - ref)) < 1e-9
+
+
+def test_lowest_mode_threshold():
+    # analytic: diag(-1, 2) is unstable with mode e_1; diag(-1e-6, 3) is stable by PySCF's -1e-5 threshold
+    e, v = dense.lowest_mode(np.diag([-1.0, 2.0]))
+    assert e == pytest.approx(-1.0) and abs(abs(v[0]) - 1) < 1e-12
+    assert dense.lowest_mode(np.diag([-1e-6, 3.0])) == (None, None)
+
+
+def test_same_decisions_and_energies_as_davidson(monkeypatch):
+    # N2 is RHF -> UHF unstable beyond about 1.1 A (2.1 bohr) in 6-31G and stable at 1.0 A: the dense
+    # route and PySCF's Davidson route must agree on both, and the followed UHF energies must match
+    mf_in = _converged(("N", "N"), 1.9, 0, 0, "RHF")
+    mf_out = _converged(("N", "N"), 3.0, 0, 0, "RHF")
+    mol = build_molecule(("N", "N"), 3.0, LEVEL, 0, 0)
+    results = {}
+    for route, limit in (("dense", dense.DENSE_LIMIT), ("davidson", 0)):
+        monkeypatch.setattr(dense, "DENSE_LIMIT", limit)
+        unstable_in, _ = unstable_towards_uhf(mf_in)
+        unstable_out, dm = unstable_towards_uhf(mf_out)
+        sol = solve(mol, "UHF", dm)
+        results[route] = (unstable_in, unstable_out, sol.energy, sol.stability)
+    assert results["dense"][:2] == results["davidson"][:2] == (False, True)
+    assert abs(results["dense"][2] - results["davidson"][2]) < 1e-8
