@@ -130,8 +130,12 @@ def main(argv=None):
     p.add_argument("--out", default=os.path.join(os.path.dirname(__file__), "results", "latest.json"))
     args = p.parse_args(argv)
     from pyscf import lib
+    from threadpoolctl import threadpool_limits
 
+    # one thread for the baseline and the tool alike (PySCF's OpenMP and the BLAS pools), as in the
+    # issue's baseline; the tool would choose one thread for these bases by itself
     lib.num_threads(1)
+    threadpool_limits(1)
     import warnings
 
     warnings.simplefilter("ignore")

@@ -68,12 +68,15 @@ class WorkerStore:
         self.ro.close()
 
 
-def _init(queue, path, reuse):
+def _init(queue, path, reuse, share):
     global _QUEUE, _STORE
-    os.environ["OMP_NUM_THREADS"] = "1"
+    os.environ["OMP_NUM_THREADS"] = str(share)
     from pyscf import lib
 
-    lib.num_threads(1)
+    from .threads import set_budget
+
+    lib.num_threads(share)
+    set_budget(share)
     _QUEUE = queue
     _STORE = WorkerStore(path, queue, reuse)
 
@@ -115,8 +118,10 @@ def run_parallel(members, store_path: str, workers: int, reuse: bool = True, on_
     writer.start()
     rows = [None] * len(members)
     try:
-        with ProcessPoolExecutor(max_workers=min(workers, len(members)), mp_context=ctx, initializer=_init,
-                                 initargs=(queue, store_path, reuse)) as pool:
+        n = min(workers, len(members))
+        share = max(1, default_workers() // n)
+        with ProcessPoolExecutor(max_workers=n, mp_context=ctx, initializer=_init,
+                                 initargs=(queue, store_path, reuse, share)) as pool:
             futures = {pool.submit(_work, m): i for i, m in enumerate(members)}
             for fut in futures:
                 i = futures[fut]

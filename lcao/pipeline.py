@@ -101,14 +101,19 @@ def resolve_inputs(species, level, grid=None, multiplicity=None, charge=None, po
     return sp, lv, gr
 
 
-def _check_electrons_fit(sp: Species, lv: Level) -> None:
+def basis_size(sp: Species, lv: Level) -> int:
+    """Number of basis functions of the molecule at this level."""
     from .scan.scf import build_molecule
 
-    mol = build_molecule(sp.atoms, 2.0, lv, 0, sp.nuclear_charge % 2)
-    if sp.n_electrons > 2 * mol.nao:
+    return int(build_molecule(sp.atoms, 2.0, lv, 0, sp.nuclear_charge % 2).nao)
+
+
+def _check_electrons_fit(sp: Species, lv: Level) -> None:
+    nao = basis_size(sp, lv)
+    if sp.n_electrons > 2 * nao:
         raise InputError(
-            f"{sp.label} has {sp.n_electrons} electrons but {lv.basis} offers only {mol.nao} orbitals"
-            f" ({2 * mol.nao} electrons) on {sp.formula_neutral}"
+            f"{sp.label} has {sp.n_electrons} electrons but {lv.basis} offers only {nao} orbitals"
+            f" ({2 * nao} electrons) on {sp.formula_neutral}"
         )
 
 
@@ -126,6 +131,7 @@ def curve(
     analyse_points: bool = True,
     refine: bool = True,
     progress=None,
+    threads: int | None = None,
 ) -> CurveResult:
     """Compute a potential-energy curve with the state-following protocol.
 
@@ -142,6 +148,8 @@ def curve(
         analyse_points: bond orders and frontier orbitals at every trusted point.
         refine: add nine points 0.01 A apart about the coarse minimum for the local fit.
         progress: optional callable(sweep, r_bohr) after each point.
+        threads: threads for PySCF and BLAS (default :func:`lcao.threads.threads_for`: one
+            below cc-pVDZ size, else this process's share of the cores).
 
     Returns:
         CurveResult
@@ -161,24 +169,17 @@ def curve(
     iso = resolve_isotopes(sp.atoms, isotopes)
     own = store is None
     st = MemoryStore() if own else store
+    from .threads import limited, threads_for
+
+    n_threads = threads if threads is not None else threads_for(basis_size(sp, lv))
     try:
-        if multiplicity is None:
-            cands = sp.multiplicity_candidates()
-            trials, p_comp, p_reuse = probe_multiplicities(sp, lv, cands, st, expected_bond_length_bohr(*sp.z), progress)
-            mult = choose_multiplicity(trials)
-            source = "lowest of candidates"
-        else:
-            trials, p_comp, p_reuse = (), 0, 0
-            mult = multiplicity
-            source = "given"
-        scan = run_protocol(sp, mult, lv, gr, st, progress)
-        along = point_summaries(sp, mult, lv, scan, st) if analyse_points else ()
-        refined, r_comp, r_reuse = (), 0, 0
-        if fit and refine:
-            refined, r_comp, r_reuse = _refine(sp, mult, lv, scan, st, progress)
+        with limited(n_threads):
+            scan, along, refined, trials, mult, source, counts = _compute(
+                sp, lv, gr, multiplicity, st, analyse_points, fit and refine, progress)
     finally:
         if own:
             st.close()
+    p_comp, p_reuse, r_comp, r_reuse = counts
     result = CurveResult(
         sp, lv, gr, mult, source, trials, scan, isotopes=iso,
         computed=scan.computed + p_comp + r_comp, reused=scan.reused + p_reuse + r_reuse, along=along,
@@ -187,6 +188,25 @@ def curve(
     if fit:
         result = _with_fit(result)
     return result
+
+
+def _compute(sp, lv, gr, multiplicity, st, analyse_points, refine, progress):
+    """Probes, protocol, analysis along the curve and refinement (see :func:`curve`)."""
+    if multiplicity is None:
+        cands = sp.multiplicity_candidates()
+        trials, p_comp, p_reuse = probe_multiplicities(sp, lv, cands, st, expected_bond_length_bohr(*sp.z), progress)
+        mult = choose_multiplicity(trials)
+        source = "lowest of candidates"
+    else:
+        trials, p_comp, p_reuse = (), 0, 0
+        mult = multiplicity
+        source = "given"
+    scan = run_protocol(sp, mult, lv, gr, st, progress)
+    along = point_summaries(sp, mult, lv, scan, st) if analyse_points else ()
+    refined, r_comp, r_reuse = (), 0, 0
+    if refine:
+        refined, r_comp, r_reuse = _refine(sp, mult, lv, scan, st, progress)
+    return scan, along, refined, trials, mult, source, (p_comp, p_reuse, r_comp, r_reuse)
 
 
 def _refine(sp, mult, lv, scan, st, progress):
