@@ -33,6 +33,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..scan.scf import ao_labels
+
 DELTA = 1e-3
 
 
@@ -64,7 +66,7 @@ def valence_aos(mol, atom: int) -> dict[str, list[int]]:
     n_val = period(z)
     out: dict[str, list[int]] = {"s": [], "p": [], "px": [], "py": [], "pz": []}
     has_p = z > 2
-    for i, (ia, _sym, shell, comp) in enumerate(mol.ao_labels(fmt=False)):
+    for i, (ia, _sym, shell, comp) in enumerate(ao_labels(mol, fmt=False)):
         if ia != atom:
             continue
         n = int("".join(ch for ch in shell if ch.isdigit()) or 0)

@@ -10,6 +10,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..scan.scf import ao_labels
+from ..scan.scf import overlap as ao_overlap
 from .character import homonuclear_class, homonuclear_name, period, prototypes, valence_slots
 from .populations import atom_slices, mayer_bond_order, mo_composition, mo_overlap_population, mulliken_overlap_population
 from .symmetry import kind_label, symmetry_basis, symmetry_weights
@@ -141,7 +143,7 @@ def _spin_sets(mf):
 def _ao_groups(mol) -> dict[str, np.ndarray]:
     """AO groups by atom and shell type, e.g. 'N1 2s' (valence n and the split-valence partner together)."""
     groups: dict[str, list[int]] = {}
-    for i, (ia, sym, shell, _comp) in enumerate(mol.ao_labels(fmt=False)):
+    for i, (ia, sym, shell, _comp) in enumerate(ao_labels(mol, fmt=False)):
         n = int("".join(ch for ch in shell if ch.isdigit()) or 0)
         l = shell.lstrip("0123456789")
         z = int(mol.atom_charge(ia))
@@ -152,17 +154,18 @@ def _ao_groups(mol) -> dict[str, np.ndarray]:
     return {k: np.array(v) for k, v in groups.items()}
 
 
-def analyse(mf, ncore: int | None = None) -> OrbitalAnalysis:
+def analyse(mf, ncore: int | None = None, fock=None) -> OrbitalAnalysis:
     """Analyse a converged SCF of a diatomic.
 
     Args:
         mf: PySCF RHF, ROHF or UHF object (converged).
         ncore: core orbitals per spin (default: the atoms' noble-gas cores).
+        fock: the Fock matrix of the converged density when already at hand.
     """
     from .character import core_orbitals
 
     mol = mf.mol
-    s = mol.intor("int1e_ovlp")
+    s = ao_overlap(mol)
     sl = atom_slices(mol)
     basis = symmetry_basis(mol)
     homo = basis.homonuclear
@@ -171,7 +174,7 @@ def analyse(mf, ncore: int | None = None) -> OrbitalAnalysis:
     groups = _ao_groups(mol)
     dm = np.asarray(mf.make_rdm1())
     dma, dmb = (dm[0], dm[1]) if dm.ndim == 3 else (dm / 2, dm / 2)
-    fock = np.asarray(mf.get_fock(dm=dm))
+    fock = np.asarray(mf.get_fock(dm=dm) if fock is None else fock)
     fdiag = np.diag(fock.mean(axis=0)) if fock.ndim == 3 else np.diag(fock)
     slots = valence_slots(mol, fdiag)
     protos = {lam: prototypes(slots[lam][0], slots[lam][1], lam, symbols) for lam in (0, 1)}
@@ -315,7 +318,7 @@ def valence_overlaps(mol, s) -> dict:
     sa, sb = first(a["s"]), first(b["s"])
     pza, pzb = first(a["pz"]), first(b["pz"])
     pxa, pxb = first(a["px"]), first(b["px"])
-    labels = mol.ao_labels()
+    labels = ao_labels(mol)
     if sa is not None and sb is not None:
         out["s-s"] = float(s[sa, sb])
     if sa is not None and pzb is not None:
@@ -355,8 +358,14 @@ def analyse_stored(species, multiplicity, level, reference, r_bohr, dm) -> Orbit
             from ..errors import CalculationError
 
             raise CalculationError(f"the stored point at {r_bohr:.4f} bohr did not re-converge for analysis")
-        mf = sol.scf
+        return analyse(sol.scf)
+    # E = 1/2 tr[P (h + F)] per spin, from the Fock matrix at hand (no second Coulomb/exchange build)
+    h = mf.get_hcore()
+    fk = np.asarray(fock)
+    if dm.ndim == 3:
+        e_el = 0.5 * sum(float(np.einsum("ij,ji->", dm[k], h + fk[k])) for k in (0, 1))
     else:
-        mf.e_tot = mf.energy_tot(dm=dm)
-        mf.converged = True
-    return analyse(mf)
+        e_el = 0.5 * float(np.einsum("ij,ji->", dm, h + fk))
+    mf.e_tot = e_el + mol.energy_nuc()
+    mf.converged = True
+    return analyse(mf, fock=fock)

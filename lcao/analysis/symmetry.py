@@ -16,6 +16,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..scan.scf import overlap
+
 PURE = 0.95
 LAMBDA_NAMES = {0: "sigma", 1: "pi", 2: "delta", 3: "phi", 4: "gamma"}
 
@@ -64,7 +66,7 @@ def symmetry_basis(mol) -> SymmetryBasis:
     if key not in _CACHE:
         _CACHE[key] = _adapted_combinations(mol)
     blocks, homo = _CACHE[key]
-    s = mol.intor("int1e_ovlp")
+    s = overlap(mol)
     return SymmetryBasis({k: (u, np.linalg.inv(u.T @ s @ u)) for k, u in blocks.items()}, homo)
 
 

@@ -113,9 +113,12 @@ class IntegralCache:
     are the geometry and the basis, not the charge or spin.
     """
 
+    SMALL_LIMIT = 256
+
     def __init__(self, limit_bytes: int):
         self.limit_bytes = limit_bytes
         self._items: OrderedDict = OrderedDict()
+        self._small: OrderedDict = OrderedDict()
         self.bytes = 0
         self.hits = 0
         self.misses = 0
@@ -141,8 +144,25 @@ class IntegralCache:
                 self.bytes -= old.nbytes
         return eri
 
+    def one_electron(self, mol):
+        """(core Hamiltonian, overlap) of the geometry, read-only arrays."""
+        k = ("1e",) + self.key(mol)
+        got = self._small.get(k)
+        if got is None:
+            h = mol.intor_symmetric("int1e_kin") + mol.intor_symmetric("int1e_nuc")
+            s = mol.intor_symmetric("int1e_ovlp")
+            for a in (h, s):
+                a.flags.writeable = False
+            got = self._small[k] = (h, s)
+            if len(self._small) > self.SMALL_LIMIT:
+                self._small.popitem(last=False)
+        else:
+            self._small.move_to_end(k)
+        return got
+
     def clear(self) -> None:
         self._items.clear()
+        self._small.clear()
         self.bytes = 0
 
 
@@ -150,10 +170,28 @@ class IntegralCache:
 INTEGRALS = IntegralCache(160 * 2**20)
 
 
+def overlap(mol) -> np.ndarray:
+    """The AO overlap matrix of ``mol`` (cached, read-only)."""
+    return INTEGRALS.one_electron(mol)[1]
+
+
+_LABELS: dict = {}
+
+
+def ao_labels(mol, fmt=True):
+    """``mol.ao_labels(fmt)``, cached per atoms and basis (labels do not depend on the distance)."""
+    k = (tuple(mol.elements), repr(mol.basis), bool(mol.cart), fmt)
+    got = _LABELS.get(k)
+    if got is None:
+        got = _LABELS[k] = mol.ao_labels(fmt=fmt)
+    return got
+
+
 def make_scf(mol, reference: str):
     """An SCF object for ``reference`` ('RHF', 'UHF', 'ROHF') with the checkpoint file off.
 
-    Where PySCF would hold the integrals in memory, they come from :data:`INTEGRALS`.
+    The one-electron integrals, and the two-electron ones where PySCF would hold them in memory,
+    come from :data:`INTEGRALS`.
     """
     from pyscf import scf
 
@@ -165,6 +203,9 @@ def make_scf(mol, reference: str):
     mf.max_cycle = 80
     if mol.incore_anyway or mf._is_mem_enough():
         mf._eri = INTEGRALS.get(mol)
+    h, s = INTEGRALS.one_electron(mol)
+    mf.get_hcore = lambda *a, **k: h
+    mf.get_ovlp = lambda *a, **k: s
     return mf
 
 
