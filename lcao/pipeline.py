@@ -169,13 +169,15 @@ def curve(
     iso = resolve_isotopes(sp.atoms, isotopes)
     own = store is None
     st = MemoryStore() if own else store
-    from .threads import limited, threads_for
+    from .threads import budget, limited, threads_for
 
     n_threads = threads if threads is not None else threads_for(basis_size(sp, lv))
+    # one thread per process: independent sweeps go to forked processes instead
+    sweep_workers = budget() if n_threads == 1 else 1
     try:
         with limited(n_threads):
             scan, along, refined, trials, mult, source, counts = _compute(
-                sp, lv, gr, multiplicity, st, analyse_points, fit and refine, progress)
+                sp, lv, gr, multiplicity, st, analyse_points, fit and refine, progress, sweep_workers)
     finally:
         if own:
             st.close()
@@ -190,7 +192,7 @@ def curve(
     return result
 
 
-def _compute(sp, lv, gr, multiplicity, st, analyse_points, refine, progress):
+def _compute(sp, lv, gr, multiplicity, st, analyse_points, refine, progress, workers=1):
     """Probes, protocol, analysis along the curve and refinement (see :func:`curve`)."""
     if multiplicity is None:
         cands = sp.multiplicity_candidates()
@@ -201,7 +203,7 @@ def _compute(sp, lv, gr, multiplicity, st, analyse_points, refine, progress):
         trials, p_comp, p_reuse = (), 0, 0
         mult = multiplicity
         source = "given"
-    scan = run_protocol(sp, mult, lv, gr, st, progress)
+    scan = run_protocol(sp, mult, lv, gr, st, progress, workers)
     along = point_summaries(sp, mult, lv, scan, st) if analyse_points else ()
     refined, r_comp, r_reuse = (), 0, 0
     if refine:

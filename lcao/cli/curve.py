@@ -106,6 +106,7 @@ class Progress:
         if enabled and sys.stderr.isatty():
             from tqdm import tqdm
 
+            tqdm.monitor_interval = 0  # no monitor thread: sweeps may fork (lcao.scan.workers)
             self.bar = tqdm(desc=label, unit="pt", file=sys.stderr, leave=False)
 
     def __call__(self, sweep, r_bohr):

@@ -136,14 +136,85 @@ class _Runner:
         if self.progress is not None:
             self.progress(sweep, r)
 
-    def chain(self, sweep, r_all, indices, reference, dm_start, out: dict, check_uhf=False):
+    def chain(self, sweep, r_all, indices, reference, dm_start, out: dict, check_uhf=False, seed=None):
+        """Points along ``indices``, each warm-started from the last converged one.
+
+        ``seed`` is an index whose point (from ``out``, the store, or computed from ``dm_start``)
+        starts the chain without being part of it, e.g. the first point of a sweep's other half.
+        """
         dm = dm_start
+        if seed is not None:
+            p = out.get(seed)
+            if p is None:
+                p = self.point(sweep, r_all[seed], reference, dm_start, check_uhf)
+                out[seed] = p
+            if p.converged:
+                dm = p.dm
         for i in indices:
             p = self.point(sweep, r_all[i], reference, dm, check_uhf)
             out[i] = p
             if p.converged:
                 dm = p.dm
         return out
+
+    def sweeps(self, r_all, tasks, workers: int = 1) -> dict:
+        """Run independent sweeps; returns sweep name -> {index: StoredPoint}.
+
+        With ``workers`` > 1 and a fork possible (:mod:`lcao.scan.workers`) the tasks are
+        balanced over this process and forked children; otherwise they run here in order.
+        Both give the same points.
+        """
+        from .workers import balance, fork_possible, run_groups
+
+        out: dict = {}
+        if workers > 1 and len(tasks) > 1 and fork_possible(workers):
+            groups = balance(tasks, [len(t.indices) + (t.seed is not None) for t in tasks], workers)
+        else:
+            groups = [list(tasks)]
+        if len(groups) == 1:
+            self._run_group(groups[0], False, r_all, out)
+            return out
+        results = run_groups(groups, lambda g, child: self._run_group(g, child, r_all, {} if child else out))
+        for got, computed, reused in results[1:]:
+            self.computed += computed
+            self.reused += reused
+            for name, pts in got.items():
+                mine = out.setdefault(name, {})
+                for i, pt in sorted(pts.items()):
+                    if i in mine:
+                        continue  # a seed both halves computed: the same point
+                    self.store.put_point(self.species, self.multiplicity, self.level, name, pt)
+                    mine[i] = pt
+                    self._tick(name, pt.r_bohr)
+        return out
+
+    def _run_group(self, group, in_child: bool, r_all, out: dict):
+        runner = self
+        if in_child:
+            from ..store import MemoryStore, Store
+
+            store = MemoryStore() if isinstance(self.store, MemoryStore) or not hasattr(self.store, "path") \
+                else Store(self.store.path, reuse=self.store.reuse)
+            runner = _Runner(self.species, self.multiplicity, self.level, store)
+        for t in group:
+            got = out.setdefault(t.name, {})
+            runner.chain(t.name, r_all, t.indices, t.reference, t.dm0, got, t.check_uhf, t.seed)
+        if in_child:
+            runner.store.close()
+            return out, runner.computed, runner.reused
+        return out, 0, 0
+
+
+@dataclass(frozen=True)
+class SweepTask:
+    """One chain of a sweep: ``indices`` in order, started from ``seed``'s point or ``dm0``."""
+
+    name: str
+    indices: tuple
+    reference: str
+    dm0: object = None
+    check_uhf: bool = False
+    seed: int | None = None
 
 
 def instability_start(runner: _Runner, r: float, stored: StoredPoint):
@@ -255,13 +326,14 @@ def choose_multiplicity(trials) -> int:
     return min(good, key=lambda t: t.energy_hartree).multiplicity
 
 
-def run_protocol(species, multiplicity, level, grid: Grid, store, progress=None) -> ScanResult:
+def run_protocol(species, multiplicity, level, grid: Grid, store, progress=None, workers: int = 1) -> ScanResult:
     """Run the scan protocol (see the module docstring) and assemble the curve.
 
     Args:
         species, multiplicity, level, grid: what to compute.
         store: a :class:`lcao.store.Store`; points found there are reused.
         progress: optional callable(sweep, r_bohr) called after each point.
+        workers: processes for independent sweeps (:meth:`_Runner.sweeps`); 1 runs them in turn.
     """
     r_all = list(grid.r_bohr)
     n = len(r_all)
@@ -278,39 +350,35 @@ def run_protocol(species, multiplicity, level, grid: Grid, store, progress=None)
     branches: dict[str, list] = {}
     instability = None
 
-    def from_equilibrium(branch, ref, check_uhf=False):
+    def from_equilibrium_tasks(branch, ref, check_uhf=False):
         name = f"{branch}/from-equilibrium"
-        got: dict = {}
-        runner.chain(name, r_all, range(i0, n), ref, None, got, check_uhf)
-        start = got[i0].dm if got[i0].converged else None
-        runner.chain(name, r_all, range(i0 - 1, -1, -1), ref, start, got, check_uhf)
+        out = SweepTask(name, tuple(range(i0, n)), ref, None, check_uhf)
+        inward = SweepTask(name, tuple(range(i0 - 1, -1, -1)), ref, None, check_uhf, seed=i0)
+        return [out] + ([inward] if i0 > 0 else [])
+
+    def record(name, got, branch, ref):
         sweeps[name] = _as_curve_points(got, n, branch, name, ref)
-        return got
+        return sweeps[name]
 
     if reference == "RHF":
         auto = level.reference == "auto"
-        got = from_equilibrium("restricted", "RHF", check_uhf=True)
-        branches["restricted"] = _flag_outliers(sweeps["restricted/from-equilibrium"])
+        done = runner.sweeps(r_all, from_equilibrium_tasks("restricted", "RHF", check_uhf=True), workers)
+        got = done["restricted/from-equilibrium"]
+        branches["restricted"] = _flag_outliers(record("restricted/from-equilibrium", got, "restricted", "RHF"))
         unstable = [i for i in range(n) if got[i].converged and got[i].extra.get("uhf_unstable")]
         if unstable:
             k = unstable[0]
             instability = (r_all[k - 1] if k > 0 else float("nan"), r_all[k])
             if auto:
-                uhf_sweeps = []
                 name = "unrestricted/from-instability"
                 dm = None
                 if store.get_point(species, multiplicity, level, name, r_all[k]) is None:
                     dm = instability_start(runner, r_all[k], got[k])
-                ugot: dict = {}
-                runner.chain(name, r_all, range(k, n), "UHF", dm, ugot)
-                sweeps[name] = _as_curve_points(ugot, n, "unrestricted", name, "UHF")
-                uhf_sweeps.append(sweeps[name])
-                for label, dmf, _ in guesses:
-                    name = f"unrestricted/{label}"
-                    fgot: dict = {}
-                    runner.chain(name, r_all, range(n - 1, k - 1, -1), "UHF", dmf, fgot)
-                    sweeps[name] = _as_curve_points(fgot, n, "unrestricted", name, "UHF")
-                    uhf_sweeps.append(sweeps[name])
+                tasks = [SweepTask(name, tuple(range(k, n)), "UHF", dm)]
+                tasks += [SweepTask(f"unrestricted/{label}", tuple(range(n - 1, k - 1, -1)), "UHF", dmf)
+                          for label, dmf, _ in guesses]
+                done = runner.sweeps(r_all, tasks, workers)
+                uhf_sweeps = [record(t.name, done.get(t.name, {}), "unrestricted", "UHF") for t in tasks]
                 branches["unrestricted"] = _flag_outliers(_lowest(uhf_sweeps, n))
             else:
                 notes.append(
@@ -319,15 +387,11 @@ def run_protocol(species, multiplicity, level, grid: Grid, store, progress=None)
                 )
     else:
         branch = "unrestricted" if reference == "UHF" else "restricted"
-        from_equilibrium(branch, reference)
-        lists = [sweeps[f"{branch}/from-equilibrium"]]
-        for label, dmf, _ in guesses:
-            name = f"{branch}/{label}"
-            fgot: dict = {}
-            dm_start = dmf
-            runner.chain(name, r_all, range(n - 1, -1, -1), reference, dm_start, fgot)
-            sweeps[name] = _as_curve_points(fgot, n, branch, name, reference)
-            lists.append(sweeps[name])
+        tasks = from_equilibrium_tasks(branch, reference)
+        tasks += [SweepTask(f"{branch}/{label}", tuple(range(n - 1, -1, -1)), reference, dmf) for label, dmf, _ in guesses]
+        done = runner.sweeps(r_all, tasks, workers)
+        names = list(dict.fromkeys(t.name for t in tasks))
+        lists = [record(nm, done.get(nm, {}), branch, reference) for nm in names]
         branches[branch] = _flag_outliers(_lowest(lists, n))
 
     # lowest trusted solution per distance over the branches

@@ -1,0 +1,93 @@
+"""Independent sweeps of one curve in forked processes: the same points as one process, the
+points of a child in the file store, and no child left behind by a killed run."""
+
+import os
+import signal
+import time
+
+import pytest
+
+import lcao
+from lcao import threads
+from lcao.scan import workers
+from lcao.scan.grid import range_grid
+from lcao.store import Store
+
+from helpers import count_rows, spawn
+
+
+def _curve(species, level, budget, monkeypatch, store=None, multiplicity=None):
+    monkeypatch.setattr(threads, "_BUDGET", budget)
+    return lcao.curve(species, level, range_grid(0.8, 3.0, 16), multiplicity=multiplicity, store=store)
+
+
+@pytest.mark.parametrize("species,multiplicity", [("N2", 1), ("NO", 2)])
+def test_forked_sweeps_give_the_same_curve(species, multiplicity, monkeypatch):
+    forks = []
+    real = workers.run_groups
+    monkeypatch.setattr(workers, "run_groups", lambda groups, fn: forks.append(len(groups)) or real(groups, fn))
+    one = _curve(species, "HF/STO-3G", 1, monkeypatch, multiplicity=multiplicity)
+    assert forks == []
+    two = _curve(species, "HF/STO-3G", 2, monkeypatch, multiplicity=multiplicity)
+    assert forks and all(n == 2 for n in forks)  # the sweeps did run in a child
+    # the same protocol, so the same points to the last bit (deterministic SCF from the same starts)
+    assert [p.energy_hartree for p in one.points] == [p.energy_hartree for p in two.points]
+    assert [p.branch for p in one.points] == [p.branch for p in two.points]
+    assert sorted(one.scan.sweeps) == sorted(two.scan.sweeps)
+    for name in one.scan.sweeps:
+        a = [p.energy_hartree if p else None for p in one.scan.sweeps[name]]
+        b = [p.energy_hartree if p else None for p in two.scan.sweeps[name]]
+        assert a == b, name
+    assert one.fit.as_dict()["re_angstrom"] == two.fit.as_dict()["re_angstrom"]
+
+
+def test_child_points_reach_the_file_store(tmp_path, monkeypatch):
+    path = tmp_path / "s.sqlite"
+    with Store(path) as st:
+        res = _curve("NO", "HF/STO-3G", 2, monkeypatch, store=st, multiplicity=2)
+    # every point of every sweep is in the file, once
+    n_sweep_points = sum(1 for pts in res.scan.sweeps.values() for p in pts if p is not None)
+    assert count_rows(str(path)) == n_sweep_points + len(res.refined)
+    with Store(path) as st:
+        again = _curve("NO", "HF/STO-3G", 2, monkeypatch, store=st, multiplicity=2)
+    assert again.computed == 0
+    assert [p.energy_hartree for p in again.points] == [p.energy_hartree for p in res.points]
+
+
+def test_no_fork_without_two_cores_or_with_threads():
+    import threading
+
+    assert not workers.fork_possible(1)
+    assert workers.fork_possible(2)  # the test process has no other thread
+    ev = threading.Event()
+    t = threading.Thread(target=ev.wait)
+    t.start()
+    try:
+        assert not workers.fork_possible(2)  # a child would inherit locks held by other threads
+    finally:
+        ev.set()
+        t.join()
+
+
+def test_balance_keeps_the_first_task_here_and_evens_the_load():
+    # analytic: sizes 10 (first), 30, 20, 5 over two groups -> [10, 20, 5] and [30]
+    groups = workers.balance(["a", "b", "c", "d"], [10, 30, 20, 5], 2)
+    assert groups[0][0] == "a"
+    assert sorted(map(sorted, groups)) == [["a", "c", "d"], ["b"]]
+
+
+def test_sigkilled_run_leaves_no_sweep_process_writing(tmp_path):
+    store = str(tmp_path / "k.sqlite")
+    args = ["curve", "NO", "--level", "HF/6-31G", "--from", "0.9", "--to", "3.5", "--points", "30", "-q", "--no-plots",
+            "--store", store, "--out", str(tmp_path / "o")]
+    proc = spawn(args)
+    deadline = time.time() + 120
+    while count_rows(store) < 10 and time.time() < deadline and proc.poll() is None:
+        time.sleep(0.05)
+    assert proc.poll() is None, "the run finished before it could be killed"
+    os.kill(proc.pid, signal.SIGKILL)
+    proc.wait()
+    time.sleep(0.5)
+    n = count_rows(store)
+    time.sleep(1.5)
+    assert count_rows(store) == n  # nothing writes after the run was killed
