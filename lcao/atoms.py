@@ -111,6 +111,11 @@ def compute_atom(symbol: str, charge: int, spin: int, level) -> AtomState:
     return AtomState(symbol, charge, spin, best.energy, True, best.dm)
 
 
+#: atom states computed in this process, per (symbol, charge, spin, level key): the curves of a
+#: series share their atoms even without a file store
+_COMPUTED: dict = {}
+
+
 class AtomCache:
     """Atom states per (symbol, charge, spin) for one level, backed by the store if given."""
 
@@ -125,7 +130,10 @@ class AtomCache:
             return self._mem[key]
         state = self.store.get_atom(symbol, charge, spin, self.level) if self.store is not None else None
         if state is None:
-            state = compute_atom(symbol, charge, spin, self.level)
+            pkey = key + (self.level.key(),)
+            state = _COMPUTED.get(pkey)
+            if state is None:
+                state = _COMPUTED[pkey] = compute_atom(symbol, charge, spin, self.level)
             if self.store is not None:
                 self.store.put_atom(state, self.level)
         self._mem[key] = state

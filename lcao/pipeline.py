@@ -192,6 +192,18 @@ def curve(
     return result
 
 
+def clear_caches() -> None:
+    """Forget what this process has cached between curves: integrals, built molecules, AO labels
+    and atom states (benchmarks start each case cold; results never depend on these caches)."""
+    from . import atoms
+    from .scan import scf
+
+    scf.INTEGRALS.clear()
+    scf._TEMPLATES.clear()
+    scf._LABELS.clear()
+    atoms._COMPUTED.clear()
+
+
 def _compute(sp, lv, gr, multiplicity, st, analyse_points, refine, progress, workers=1):
     """Probes, protocol, analysis along the curve and refinement (see :func:`curve`)."""
     if multiplicity is None:
@@ -204,14 +216,14 @@ def _compute(sp, lv, gr, multiplicity, st, analyse_points, refine, progress, wor
         mult = multiplicity
         source = "given"
     scan = run_protocol(sp, mult, lv, gr, st, progress, workers)
-    along = point_summaries(sp, mult, lv, scan, st) if analyse_points else ()
+    along = point_summaries(sp, mult, lv, scan, st, workers) if analyse_points else ()
     refined, r_comp, r_reuse = (), 0, 0
     if refine:
-        refined, r_comp, r_reuse = _refine(sp, mult, lv, scan, st, progress)
+        refined, r_comp, r_reuse = _refine(sp, mult, lv, scan, st, progress, workers)
     return scan, along, refined, trials, mult, source, (p_comp, p_reuse, r_comp, r_reuse)
 
 
-def _refine(sp, mult, lv, scan, st, progress):
+def _refine(sp, mult, lv, scan, st, progress, workers=1):
     """Refinement points about the coarse minimum of the well (empty when there is none inside the grid)."""
     from .errors import FitError
     from .fit import well_points
@@ -225,7 +237,7 @@ def _refine(sp, mult, lv, scan, st, progress):
         lf = local_fit([p.r_bohr for p in well], [p.energy_hartree for p in well])
     except FitError:
         return (), 0, 0
-    return refine_minimum(sp, mult, lv, scan, st, branch, lf.re, progress)
+    return refine_minimum(sp, mult, lv, scan, st, branch, lf.re, progress, workers)
 
 
 def point_reference(scan, point) -> str:
@@ -244,33 +256,36 @@ def stored_density(store, species, multiplicity, level, point):
     return got.dm
 
 
-def point_summaries(species, multiplicity, level, scan, store) -> tuple:
-    """Bond orders and frontier orbitals of every trusted point (None for flagged ones)."""
+def point_summaries(species, multiplicity, level, scan, store, workers: int = 1) -> tuple:
+    """Bond orders and frontier orbitals of every trusted point (None for flagged ones), the
+    points split over ``workers`` processes where a fork is possible (:mod:`lcao.scan.workers`)."""
+    from .scan.workers import split_map
+
+    jobs = [(p, stored_density(store, species, multiplicity, level, p)) if p.trusted else None for p in scan.points]
+    return tuple(split_map(lambda job: _summary(species, multiplicity, level, scan, job), jobs, workers))
+
+
+def _summary(species, multiplicity, level, scan, job):
     from .analysis.orbitals import analyse_stored
     from .errors import CalculationError
 
-    out = []
-    for p in scan.points:
-        if not p.trusted:
-            out.append(None)
-            continue
-        try:
-            a = analyse_stored(species, multiplicity, level, point_reference(scan, p), p.r_bohr,
-                               stored_density(store, species, multiplicity, level, p))
-        except CalculationError as exc:
-            log.warning("no orbital analysis at %.4f A: %s", p.r_angstrom, exc)
-            out.append(None)
-            continue
-        out.append({
-            "r_angstrom": p.r_angstrom,
-            "branch": p.branch,
-            "bond_orders": a.bond_orders(),
-            "unpaired_electrons": a.unpaired_electrons,
-            "s2": a.s2,
-            "frontier": a.frontier(),
-            "overlaps": {k: v for k, v in a.overlaps.items() if k != "functions"},
-        })
-    return tuple(out)
+    if job is None:
+        return None
+    p, dm = job
+    try:
+        a = analyse_stored(species, multiplicity, level, point_reference(scan, p), p.r_bohr, dm)
+    except CalculationError as exc:
+        log.warning("no orbital analysis at %.4f A: %s", p.r_angstrom, exc)
+        return None
+    return {
+        "r_angstrom": p.r_angstrom,
+        "branch": p.branch,
+        "bond_orders": a.bond_orders(),
+        "unpaired_electrons": a.unpaired_electrons,
+        "s2": a.s2,
+        "frontier": a.frontier(),
+        "overlaps": {k: v for k, v in a.overlaps.items() if k != "functions"},
+    }
 
 
 @dataclass(frozen=True)

@@ -39,6 +39,7 @@ def test_forked_sweeps_give_the_same_curve(species, multiplicity, monkeypatch):
         b = [p.energy_hartree if p else None for p in two.scan.sweeps[name]]
         assert a == b, name
     assert one.fit.as_dict()["re_angstrom"] == two.fit.as_dict()["re_angstrom"]
+    assert one.computed == two.computed  # a seed computed on both sides counts once
 
 
 def test_child_points_reach_the_file_store(tmp_path, monkeypatch):

@@ -49,6 +49,9 @@ def _members_run(members, store_path, args, progress):
     if workers < 1:
         raise InputError(f"--workers must be at least 1, got {workers}")
     if workers == 1 or len(members) == 1:
+        from ..threads import set_budget
+
+        set_budget(workers)  # --workers caps the processes: one member may still fork its sweeps
         with Store(store_path, reuse=not args.recompute) as store:
             return run_series(members, store, progress)
     return run_parallel(members, store_path, workers, reuse=not args.recompute,

@@ -34,15 +34,18 @@ def _unpack(eri, n):
 
 
 def _left(e4, c1, c2):
-    """(pq|rs) -> (xy|rs) with x = c1 on p, y = c2 on q."""
+    """(pq|rs) -> (xy|rs) with x = c1 on p, y = c2 on q; shape (x, y, n*n)."""
     n = e4.shape[0]
-    t = (c1.T @ e4.reshape(n, n**3)).reshape(-1, n, n, n)
-    return np.einsum("xqrs,qy->xyrs", t, c2, optimize=True)
+    t = (c1.T @ e4.reshape(n, n**3)).reshape(-1, n, n * n)  # (x, q, rs)
+    return np.matmul(c2.T, t)  # (x, y, rs), one product per x
 
 
 def _right(left, c3, c4):
-    """(xy|rs) -> (xy|zw) with z = c3 on r, w = c4 on s."""
-    return np.einsum("xyrw,rz->xyzw", left @ c4, c3, optimize=True)
+    """(xy|rs) -> (xy|zw) with z = c3 on r, w = c4 on s; shape (x, y, z, w)."""
+    x, y, nn = left.shape
+    n = c3.shape[0]
+    t = np.matmul(c3.T, left.reshape(x * y, n, n)) @ c4  # (xy, z, w)
+    return t.reshape(x, y, c3.shape[1], c4.shape[1])
 
 
 def _blocks(e4, co, cv):
@@ -142,21 +145,28 @@ def dense_possible(mf) -> bool:
     return 0 < n <= DENSE_LIMIT
 
 
+def _rhf_pair(mf):
+    """(singlet, triplet) Hessians of an RHF solution, built once per solution."""
+    got = getattr(mf, "_lcao_hessians", None)
+    if got is not None and got[0] is mf.mo_coeff:
+        return got[1]
+    dm = mf.make_rdm1()
+    fock = mf.get_hcore() + mf.get_veff(mf.mol, dm)
+    pair = rhf_hessians(mf.mo_coeff, mf.mo_occ, fock, mf._eri)
+    mf._lcao_hessians = (mf.mo_coeff, pair)
+    return pair
+
+
 def internal(mf, reference: str):
     """Lowest internal mode of a converged RHF or UHF solution: (eigenvalue, vector), or
     (None, None) when it is stable (see :func:`lowest_mode`)."""
+    if reference == "RHF":
+        return lowest_mode(_rhf_pair(mf)[0])
     dm = mf.make_rdm1()
     fock = mf.get_hcore() + mf.get_veff(mf.mol, dm)
-    if reference == "RHF":
-        h, _ = rhf_hessians(mf.mo_coeff, mf.mo_occ, fock, mf._eri)
-    else:
-        h = uhf_hessian(mf.mo_coeff, mf.mo_occ, fock, mf._eri)
-    return lowest_mode(h)
+    return lowest_mode(uhf_hessian(mf.mo_coeff, mf.mo_occ, fock, mf._eri))
 
 
 def rhf_to_uhf(mf):
     """Lowest RHF -> UHF (triplet) mode of a converged closed-shell RHF solution, or (None, None)."""
-    dm = mf.make_rdm1()
-    fock = mf.get_hcore() + mf.get_veff(mf.mol, dm)
-    _, h = rhf_hessians(mf.mo_coeff, mf.mo_occ, fock, mf._eri)
-    return lowest_mode(h)
+    return lowest_mode(_rhf_pair(mf)[1])

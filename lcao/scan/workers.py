@@ -116,3 +116,16 @@ def balance(tasks, sizes, n_groups: int):
         groups[g].append(tasks[i])
         loads[g] += sizes[i]
     return [g for g in groups if g]
+
+
+def split_map(fn, items, workers: int):
+    """``[fn(x) for x in items]``, the items split into contiguous chunks over this process and
+    forked children when :func:`fork_possible`; results in item order."""
+    items = list(items)
+    if workers < 2 or len(items) < 2 or not fork_possible(workers):
+        return [fn(x) for x in items]
+    n = min(workers, len(items))
+    size = -(-len(items) // n)
+    chunks = [items[k:k + size] for k in range(0, len(items), size)]
+    out = run_groups(chunks, lambda chunk, _child: [fn(x) for x in chunk])
+    return [y for part in out for y in part]
