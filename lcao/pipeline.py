@@ -149,7 +149,7 @@ def curve(
         refine: add nine points 0.01 A apart about the coarse minimum for the local fit.
         progress: optional callable(sweep, r_bohr) after each point.
         threads: threads for PySCF and BLAS (default :func:`lcao.threads.threads_for`: one
-            below cc-pVDZ size, else this process's share of the cores).
+            up to cc-pVTZ size, else this process's share of the cores).
 
     Returns:
         CurveResult
