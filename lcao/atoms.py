@@ -139,6 +139,16 @@ class AtomCache:
         self._mem[key] = state
         return state
 
+    def add(self, state: AtomState) -> None:
+        """Take a state computed elsewhere (a forked sweep process) into this cache and its store."""
+        key = (state.symbol, state.charge, state.spin)
+        if key in self._mem:
+            return
+        self._mem[key] = state
+        _COMPUTED.setdefault(key + (self.level.key(),), state)
+        if self.store is not None and self.store.get_atom(*key, self.level) is None:
+            self.store.put_atom(state, self.level)
+
     def ground(self, symbol: str, charge: int) -> AtomState:
         return self.get(symbol, charge, ground_spin(symbol, charge))
 
@@ -204,6 +214,19 @@ def fragment_density(state_a: AtomState, state_b: AtomState, flip) -> np.ndarray
     elif flip == "b":
         db = db[::-1]
     return np.array([block_diag(da[0], db[0]), block_diag(da[1], db[1])])
+
+
+def needed_states(species: Species, spin: int) -> list[tuple[str, int, int]]:
+    """(symbol, charge, 2S) of every atom state :func:`separated_atoms` and :func:`fragment_guesses`
+    ask for, in the order they ask."""
+    out = []
+    for qa, qb in charge_placements(species):
+        sa = ground_spin(species.atoms[0], qa)
+        sb = ground_spin(species.atoms[1], qb)
+        out += [(species.atoms[0], qa, sa), (species.atoms[1], qb, sb)]
+        for ma, mb, _flip in fragment_spins(sa, sb, spin):
+            out += [(species.atoms[0], qa, ma), (species.atoms[1], qb, mb)]
+    return list(dict.fromkeys(out))
 
 
 def fragment_guesses(species: Species, spin: int, cache: AtomCache, max_candidates: int = 1):

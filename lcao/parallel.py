@@ -154,6 +154,8 @@ def run_parallel(members, store_path: str, workers: int, reuse: bool = True, on_
             writer.start()
         queue.put(None)
         writer.join()
+        queue.close()
+        queue.join_thread()  # no feeder thread left behind: the next pool may fork again
     if errors:
         raise errors[0]
     return tuple(rows)

@@ -193,12 +193,16 @@ def curve(
 
 
 def clear_caches() -> None:
-    """Forget what this process has cached between curves: integrals, built molecules, AO labels
-    and atom states (benchmarks start each case cold; results never depend on these caches)."""
+    """Forget what this process has cached between curves: integrals, orbitals, built molecules, AO labels,
+    symmetry-adapted bases and atom states (benchmarks start each case cold; results never depend on
+    these caches)."""
     from . import atoms
+    from .analysis import symmetry
     from .scan import scf
 
     scf.INTEGRALS.clear()
+    scf.ORBITALS.clear()
+    symmetry._CACHE.clear()
     scf._TEMPLATES.clear()
     scf._LABELS.clear()
     atoms._COMPUTED.clear()
@@ -261,7 +265,12 @@ def point_summaries(species, multiplicity, level, scan, store, workers: int = 1)
     points split over ``workers`` processes where a fork is possible (:mod:`lcao.scan.workers`)."""
     from .scan.workers import split_map
 
-    jobs = [(p, stored_density(store, species, multiplicity, level, p)) if p.trusted else None for p in scan.points]
+    from .scan.scf import ORBITALS
+    from .store import Store
+
+    jobs = [(p, stored_density(store, species, multiplicity, level, p),
+             ORBITALS.get(Store._point_key(species, multiplicity, level, p.sweep, p.r_bohr))) if p.trusted else None
+            for p in scan.points]
     return tuple(split_map(lambda job: _summary(species, multiplicity, level, scan, job), jobs, workers))
 
 
@@ -271,9 +280,9 @@ def _summary(species, multiplicity, level, scan, job):
 
     if job is None:
         return None
-    p, dm = job
+    p, dm, orbitals = job
     try:
-        a = analyse_stored(species, multiplicity, level, point_reference(scan, p), p.r_bohr, dm)
+        a = analyse_stored(species, multiplicity, level, point_reference(scan, p), p.r_bohr, dm, orbitals)
     except CalculationError as exc:
         log.warning("no orbital analysis at %.4f A: %s", p.r_angstrom, exc)
         return None
@@ -382,10 +391,13 @@ def orbitals(
 
             raise CalculationError(f"the solution at {chosen.r_angstrom:.4f} A is flagged: {chosen.flag}")
         from .analysis.orbitals import analyse_stored
+        from .scan.scf import ORBITALS
+        from .store import Store
 
         mult = one.multiplicity
         analysis = analyse_stored(sp, mult, lv, point_reference(scan, chosen), chosen.r_bohr,
-                                  stored_density(st, sp, mult, lv, chosen))
+                                  stored_density(st, sp, mult, lv, chosen),
+                                  ORBITALS.get(Store._point_key(sp, mult, lv, chosen.sweep, chosen.r_bohr)))
         others = {k: v.energy_hartree for k, v in cands.items() if v is not chosen}
         atoms = atom_levels(scan.limit, lv)
     finally:

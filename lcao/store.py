@@ -67,6 +67,8 @@ class StoredPoint:
     reason: str | None
     extra: dict
     dm: np.ndarray = field(repr=False, compare=False)
+    #: (mo_energy, mo_coeff, mo_occ) of a point computed in this run; never written to the file
+    orbitals: tuple | None = field(default=None, repr=False, compare=False)
 
 
 def _pack(dm) -> tuple[str, bytes]:

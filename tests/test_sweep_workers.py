@@ -92,3 +92,32 @@ def test_sigkilled_run_leaves_no_sweep_process_writing(tmp_path):
     n = count_rows(store)
     time.sleep(1.5)
     assert count_rows(store) == n  # nothing writes after the run was killed
+
+
+@pytest.mark.parametrize("species,multiplicity", [("N2", 1), ("NO", 2)])
+def test_analysis_from_kept_orbitals_equals_the_rebuilt_one(species, multiplicity, monkeypatch):
+    # the orbitals kept from the SCF (F = S C e C^T S) and those rebuilt from the stored density by one
+    # Fock diagonalisation must give the same analysis along the curve
+    from lcao.pipeline import point_summaries
+    from lcao.scan.scf import ORBITALS
+    from lcao.store import MemoryStore
+
+    st = MemoryStore()
+    res = _curve(species, "HF/STO-3G", 1, monkeypatch, store=st, multiplicity=multiplicity)
+    ORBITALS.clear()
+    rebuilt = point_summaries(res.species, res.multiplicity, res.level, res.scan, st)
+    assert len(rebuilt) == len(res.along)
+    for a, b in zip(res.along, rebuilt):
+        assert (a is None) == (b is None)
+        if a is None:
+            continue
+        for k, v in a["bond_orders"].items():
+            if isinstance(v, float):
+                assert v == pytest.approx(b["bond_orders"][k], abs=1e-4), k  # both within the SCF tolerance
+            else:
+                assert v == b["bond_orders"][k], k
+        assert a["unpaired_electrons"] == b["unpaired_electrons"]
+        assert a["s2"] == pytest.approx(b["s2"], abs=1e-4)
+        for side in ("homo", "lumo"):
+            assert a["frontier"][side]["label"] == b["frontier"][side]["label"]
+            assert a["frontier"][side]["energy_hartree"] == pytest.approx(b["frontier"][side]["energy_hartree"], abs=1e-5)

@@ -339,8 +339,17 @@ def valence_overlaps(mol, s) -> dict:
 REBUILD_TOL = 1e-5
 
 
-def analyse_stored(species, multiplicity, level, reference, r_bohr, dm) -> OrbitalAnalysis:
-    """Analyse a stored point: its orbitals from one diagonalisation of the Fock matrix of its
+def _fock_from_orbitals(s, orbitals):
+    """F = S C diag(e) C^T S: the Fock matrix whose eigenvectors are the given canonical orbitals."""
+    e, c, _ = orbitals
+    if np.asarray(c).ndim == 3:
+        return np.array([s @ (c[k] * e[k]) @ c[k].T @ s for k in (0, 1)])
+    return s @ (c * e) @ c.T @ s
+
+
+def analyse_stored(species, multiplicity, level, reference, r_bohr, dm, orbitals=None) -> OrbitalAnalysis:
+    """Analyse a stored point: its orbitals as computed in this run (``orbitals``, see
+    :class:`lcao.store.StoredPoint`) or else from one diagonalisation of the Fock matrix of its
     converged density (re-converged only if that does not reproduce the density)."""
     from ..scan.scf import build_molecule, make_scf, solve
 
@@ -349,9 +358,13 @@ def analyse_stored(species, multiplicity, level, reference, r_bohr, dm) -> Orbit
     if reference == "RHF" and dm.ndim == 3:
         dm = dm.sum(axis=0)
     mf = make_scf(mol, reference)
-    fock = mf.get_fock(dm=dm)
-    mf.mo_energy, mf.mo_coeff = mf.eig(fock, mf.get_ovlp())
-    mf.mo_occ = mf.get_occ(mf.mo_energy, mf.mo_coeff)
+    if orbitals is not None and np.asarray(orbitals[1]).ndim == (3 if reference == "UHF" else 2):
+        mf.mo_energy, mf.mo_coeff, mf.mo_occ = orbitals
+        fock = _fock_from_orbitals(mf.get_ovlp(), orbitals)
+    else:
+        fock = mf.get_fock(dm=dm)
+        mf.mo_energy, mf.mo_coeff = mf.eig(fock, mf.get_ovlp())
+        mf.mo_occ = mf.get_occ(mf.mo_energy, mf.mo_coeff)
     if np.max(np.abs(np.asarray(mf.make_rdm1()) - dm)) > REBUILD_TOL:
         sol = solve(mol, reference, dm, follow_stability=False)
         if not sol.converged:

@@ -28,12 +28,12 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from ..atoms import AtomCache, SeparatedAtoms, fragment_guesses, separated_atoms
+from ..atoms import AtomCache, SeparatedAtoms, fragment_guesses, needed_states, separated_atoms
 from ..points import CurvePoint, outlier_reasons
-from ..store import StoredPoint
+from ..store import Store, StoredPoint
 from ..units import bohr_to_angstrom
 from .grid import Grid, expected_bond_length_bohr
-from .scf import build_molecule, solve, solver_for, unstable_towards_uhf
+from .scf import ORBITALS, build_molecule, orbitals_of, solve, solver_for, unstable_towards_uhf
 
 log = logging.getLogger(__name__)
 
@@ -126,8 +126,11 @@ class _Runner:
         if check_uhf and sol.converged:
             unstable, _ = unstable_towards_uhf(sol.scf)
             extra["uhf_unstable"] = bool(unstable)
-        p = StoredPoint(r, sol.energy, sol.converged, sol.cycles, sol.s2, sol.rescue, sol.stability, sol.reason, extra, sol.dm)
+        orb = orbitals_of(sol.scf) if sol.converged and sol.scf is not None else None
+        p = StoredPoint(r, sol.energy, sol.converged, sol.cycles, sol.s2, sol.rescue, sol.stability, sol.reason, extra,
+                        sol.dm, orb)
         self.store.put_point(self.species, self.multiplicity, self.level, sweep, p)
+        ORBITALS.put(Store._point_key(self.species, self.multiplicity, self.level, sweep, r), orb)
         self.computed += 1
         self.fresh.add((sweep, r))
         log.debug("%s %s r=%.4f bohr E=%.8f conv=%s cycles=%d", self.species.label, sweep, r, sol.energy, sol.converged, sol.cycles)
@@ -184,7 +187,7 @@ class _Runner:
 
         out: dict = {}
         if workers > 1 and len(tasks) > 1 and fork_possible(workers):
-            groups = balance(tasks, [len(t.indices) + (t.seed is not None) for t in tasks], workers)
+            groups = balance(tasks, [_task_size(t) for t in tasks], workers)
         else:
             groups = [list(tasks)]
         if len(groups) == 1:
@@ -194,6 +197,8 @@ class _Runner:
         for got, computed, reused, fresh in results[1:]:
             self.computed += computed
             self.reused += reused
+            if AtomsTask.KEY in got:
+                out[AtomsTask.KEY] = got.pop(AtomsTask.KEY)
             for name, pts in got.items():
                 mine = out.setdefault(name, {})
                 for i, pt in sorted(pts.items()):
@@ -202,6 +207,7 @@ class _Runner:
                         self.computed -= (name, pt.r_bohr) in fresh
                         continue
                     self.store.put_point(self.species, self.multiplicity, self.level, name, pt)
+                    ORBITALS.put(Store._point_key(self.species, self.multiplicity, self.level, name, pt.r_bohr), pt.orbitals)
                     mine[i] = pt
                     self._tick(name, pt.r_bohr)
         return out
@@ -215,12 +221,33 @@ class _Runner:
                 else Store(self.store.path, reuse=self.store.reuse)
             runner = _Runner(self.species, self.multiplicity, self.level, store)
         for t in group:
+            if isinstance(t, AtomsTask):
+                cache = AtomCache(self.level, runner.store)
+                out[AtomsTask.KEY] = [cache.get(*k) for k in t.states]
+                continue
             got = out.setdefault(t.name, {})
             runner.chain(t.name, r_all, t.indices, t.reference, t.dm0, got, t.check_uhf, t.seed)
         if in_child:
             runner.store.close()
             return out, runner.computed, runner.reused, runner.fresh
         return out, 0, 0, set()
+
+
+def _task_size(task) -> float:
+    """Rough cost in sweep points: an atom state from scratch costs about three."""
+    if isinstance(task, AtomsTask):
+        return 3.0 * len(task.states)
+    return len(task.indices) + (task.seed is not None)
+
+
+@dataclass(frozen=True)
+class AtomsTask:
+    """The separated-atom states a curve needs, computed beside a sweep (see run_protocol)."""
+
+    KEY = "__atoms__"
+    states: tuple
+    indices: tuple = ()
+    seed: None = None
 
 
 @dataclass(frozen=True)
@@ -373,9 +400,12 @@ def run_protocol(species, multiplicity, level, grid: Grid, store, progress=None,
     reference = level.resolved_reference(multiplicity)
     runner = _Runner(species, multiplicity, level, store, progress)
     cache = AtomCache(level, store)
-    limit = separated_atoms(species, cache)
-    guesses = fragment_guesses(species, multiplicity - 1, cache)
-    frag_limit = min((g[2] for g in guesses), default=None)
+    # a closed-shell HF curve needs the atoms only after its restricted sweep: they are computed
+    # beside its shorter inward half (in a forked process when there is one), else first
+    atoms_beside = reference == "RHF" and level.reference == "auto"
+    if not atoms_beside:
+        limit = separated_atoms(species, cache)
+        guesses = fragment_guesses(species, multiplicity - 1, cache)
     re_guess = expected_bond_length_bohr(*species.z)
     i0 = int(np.argmin([abs(x - re_guess) for x in r_all]))
     notes = []
@@ -395,7 +425,15 @@ def run_protocol(species, multiplicity, level, grid: Grid, store, progress=None,
 
     if reference == "RHF":
         auto = level.reference == "auto"
-        done = runner.sweeps(r_all, from_equilibrium_tasks("restricted", "RHF", check_uhf=True), workers)
+        tasks = from_equilibrium_tasks("restricted", "RHF", check_uhf=True)
+        if atoms_beside:
+            tasks.append(AtomsTask(tuple(needed_states(species, multiplicity - 1))))
+        done = runner.sweeps(r_all, tasks, workers)
+        for state in done.pop(AtomsTask.KEY, ()):
+            cache.add(state)
+        if atoms_beside:
+            limit = separated_atoms(species, cache)
+            guesses = fragment_guesses(species, multiplicity - 1, cache)
         got = done["restricted/from-equilibrium"]
         branches["restricted"] = _flag_outliers(record("restricted/from-equilibrium", got, "restricted", "RHF"))
         unstable = [i for i in range(n) if got[i].converged and got[i].extra.get("uhf_unstable")]
@@ -426,6 +464,8 @@ def run_protocol(species, multiplicity, level, grid: Grid, store, progress=None,
         names = list(dict.fromkeys(t.name for t in tasks))
         lists = [record(nm, done.get(nm, {}), branch, reference) for nm in names]
         branches[branch] = _flag_outliers(_lowest(lists, n))
+
+    frag_limit = min((g[2] for g in guesses), default=None)
 
     # lowest trusted solution per distance over the branches
     final = []

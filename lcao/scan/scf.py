@@ -170,6 +170,37 @@ class IntegralCache:
 INTEGRALS = IntegralCache(160 * 2**20)
 
 
+class OrbitalCache:
+    """Orbitals of the points computed in this process (and sent back by forked sweeps), so the
+    analysis along a curve needs no Fock build; bounded by count, keyed like the store's points."""
+
+    def __init__(self, limit: int):
+        self.limit = limit
+        self._items: OrderedDict = OrderedDict()
+
+    def put(self, key, orbitals) -> None:
+        if orbitals is None:
+            return
+        self._items[key] = orbitals
+        self._items.move_to_end(key)
+        while len(self._items) > self.limit:
+            self._items.popitem(last=False)
+
+    def get(self, key):
+        return self._items.get(key)
+
+    def clear(self) -> None:
+        self._items.clear()
+
+
+ORBITALS = OrbitalCache(2048)
+
+
+def orbitals_of(mf):
+    """(mo_energy, mo_coeff, mo_occ) of a converged SCF, as arrays."""
+    return (np.asarray(mf.mo_energy), np.asarray(mf.mo_coeff), np.asarray(mf.mo_occ))
+
+
 def overlap(mol) -> np.ndarray:
     """The AO overlap matrix of ``mol`` (cached, read-only)."""
     return INTEGRALS.one_electron(mol)[1]
@@ -230,6 +261,10 @@ def _kernel(mf, dm0):
 #: cycles or oscillates, and then the level-shift rung rarely helps either (at long range in CO,
 #: HF/6-31G, 80 DIIS and 150 level-shift cycles failed where second-order SCF converged in 0.14 s).
 AFTER_INSTABILITY_DIIS_CYCLES = 40
+#: cycles of the level-shift rung. Over nine HF/6-31G curves (CO, BF, N2, NO+, CN-, O2, NO, C2, CN;
+#: about 1300 SCFs) eight points failed plain DIIS: the level shift rescued one, after 170 cycles,
+#: and second-order SCF the other seven, each after 150 vain level-shift cycles.
+LEVEL_SHIFT_CYCLES = 60
 
 
 def _ladder(mol, reference: str, dm0, *, diis_cycles: int = 80, level_shift: bool = True):
@@ -247,7 +282,7 @@ def _ladder(mol, reference: str, dm0, *, diis_cycles: int = 80, level_shift: boo
         ms.level_shift = 0.3
         ms.damp = 0.3
         ms.diis_start_cycle = 6
-        ms.max_cycle = 150
+        ms.max_cycle = LEVEL_SHIFT_CYCLES
         ok, c = _kernel(ms, start)
         cycles += c
         if ok:
