@@ -53,6 +53,9 @@ def test_child_points_reach_the_file_store(tmp_path, monkeypatch):
         again = _curve("NO", "HF/STO-3G", 2, monkeypatch, store=st, multiplicity=2)
     assert again.computed == 0
     assert [p.energy_hartree for p in again.points] == [p.energy_hartree for p in res.points]
+    with Store(path) as st:
+        again_here = _curve("NO", "HF/STO-3G", 1, monkeypatch, store=st, multiplicity=2)
+    assert again.reused == again_here.reused  # a seed read on both sides counts once
 
 
 def test_no_fork_without_two_cores_or_with_threads():

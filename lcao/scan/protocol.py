@@ -203,8 +203,11 @@ class _Runner:
                 mine = out.setdefault(name, {})
                 for i, pt in sorted(pts.items()):
                     if i in mine:
-                        # a seed both halves computed: the same point, counted once
-                        self.computed -= (name, pt.r_bohr) in fresh
+                        # a seed both sides computed or reused: the same point, counted once
+                        if (name, pt.r_bohr) in fresh:
+                            self.computed -= 1
+                        else:
+                            self.reused -= 1
                         continue
                     self.store.put_point(self.species, self.multiplicity, self.level, name, pt)
                     ORBITALS.put(Store._point_key(self.species, self.multiplicity, self.level, name, pt.r_bohr), pt.orbitals)
@@ -246,8 +249,6 @@ class AtomsTask:
 
     KEY = "__atoms__"
     states: tuple
-    indices: tuple = ()
-    seed: None = None
 
 
 @dataclass(frozen=True)

@@ -136,7 +136,8 @@ class IntegralCache:
             return eri
         self.misses += 1
         eri = mol.intor("int2e", aosym="s8")
-        if eri.nbytes <= self.limit_bytes:
+        # a curve profits only if it can keep about 40 geometries: larger sets are not kept at all
+        if eri.nbytes <= self.limit_bytes / 32:
             self._items[k] = eri
             self.bytes += eri.nbytes
             while self.bytes > self.limit_bytes:
@@ -166,34 +167,46 @@ class IntegralCache:
         self.bytes = 0
 
 
-#: about 13 MB per geometry of N2 in cc-pVTZ, 0.1 MB in 6-31G
+#: 0.1 MB per geometry of N2 in 6-31G, 0.7 MB in cc-pVDZ, 4.7 MB in aug-cc-pVDZ (kept), 13 MB in
+#: cc-pVTZ (not kept)
 INTEGRALS = IntegralCache(160 * 2**20)
 
 
 class OrbitalCache:
     """Orbitals of the points computed in this process (and sent back by forked sweeps), so the
-    analysis along a curve needs no Fock build; bounded by count, keyed like the store's points."""
+    analysis along a curve needs no Fock build; bounded in bytes, keyed like the store's points."""
 
-    def __init__(self, limit: int):
-        self.limit = limit
+    def __init__(self, limit_bytes: int):
+        self.limit_bytes = limit_bytes
+        self.bytes = 0
         self._items: OrderedDict = OrderedDict()
+
+    @staticmethod
+    def _size(orbitals) -> int:
+        return sum(np.asarray(a).nbytes for a in orbitals)
 
     def put(self, key, orbitals) -> None:
         if orbitals is None:
             return
+        old = self._items.pop(key, None)
+        if old is not None:
+            self.bytes -= self._size(old)
         self._items[key] = orbitals
-        self._items.move_to_end(key)
-        while len(self._items) > self.limit:
-            self._items.popitem(last=False)
+        self.bytes += self._size(orbitals)
+        while self.bytes > self.limit_bytes and self._items:
+            _, dropped = self._items.popitem(last=False)
+            self.bytes -= self._size(dropped)
 
     def get(self, key):
         return self._items.get(key)
 
     def clear(self) -> None:
         self._items.clear()
+        self.bytes = 0
 
 
-ORBITALS = OrbitalCache(2048)
+#: 5 KB per point of N2 in 6-31G, 58 KB in cc-pVTZ
+ORBITALS = OrbitalCache(48 * 2**20)
 
 
 def orbitals_of(mf):
