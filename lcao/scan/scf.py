@@ -72,10 +72,48 @@ def _build(atoms, level, charge: int, spin: int):
     return mol
 
 
+class BoundedCache:
+    """A least-recently-used mapping bounded by the total ``size`` of its values (entries by default)."""
+
+    def __init__(self, limit, size=lambda value: 1):
+        self.limit = limit
+        self.size = size
+        self.total = 0
+        self._items: OrderedDict = OrderedDict()
+
+    def get(self, key):
+        value = self._items.get(key)
+        if value is not None:
+            self._items.move_to_end(key)
+        return value
+
+    def put(self, key, value) -> None:
+        if value is None:  # nothing to keep (a point without orbitals)
+            return
+        old = self._items.pop(key, None)
+        if old is not None:
+            self.total -= self.size(old)
+        self._items[key] = value
+        self.total += self.size(value)
+        while self.total > self.limit and self._items:
+            _, dropped = self._items.popitem(last=False)
+            self.total -= self.size(dropped)
+
+    def clear(self) -> None:
+        self._items.clear()
+        self.total = 0
+
+    def __len__(self) -> int:
+        return len(self._items)
+
+
+def _nbytes(value) -> int:
+    return sum(np.asarray(a).nbytes for a in value) if isinstance(value, tuple) else np.asarray(value).nbytes
+
+
 #: molecules already built (basis parsed), per atoms, level, charge and spin: a new distance
 #: only moves the second nucleus (0.02 ms against 0.7 ms for a fresh build)
-_TEMPLATES: OrderedDict = OrderedDict()
-_TEMPLATE_LIMIT = 64
+_TEMPLATES = BoundedCache(64)
 
 
 def build_molecule(symbols, r_bohr: float, level, charge: int, spin: int):
@@ -91,11 +129,7 @@ def build_molecule(symbols, r_bohr: float, level, charge: int, spin: int):
     tmpl = _TEMPLATES.get(key)
     if tmpl is None:
         tmpl = _build([(symbols[0], (0.0, 0.0, 0.0)), (symbols[1], (0.0, 0.0, float(r_bohr)))], level, charge, spin)
-        _TEMPLATES[key] = tmpl
-        if len(_TEMPLATES) > _TEMPLATE_LIMIT:
-            _TEMPLATES.popitem(last=False)
-    else:
-        _TEMPLATES.move_to_end(key)
+        _TEMPLATES.put(key, tmpl)
     coords = np.array([[0.0, 0.0, 0.0], [0.0, 0.0, float(r_bohr)]])
     return tmpl.set_geom_(coords, unit="Bohr", inplace=False)
 
@@ -106,22 +140,18 @@ def build_atom(symbol: str, level, charge: int, spin: int):
 
 
 class IntegralCache:
-    """Two-electron integrals (8-fold packed) of recent geometries, bounded in bytes.
+    """One- and two-electron integrals (the latter 8-fold packed) of recent geometries.
 
     A curve visits most distances several times (restricted and unrestricted branches, the sweeps
     from both ends, analysis), and the integrals are about 40 % of a warm-started 6-31G SCF. Keys
-    are the geometry and the basis, not the charge or spin.
+    are the geometry and the basis, not the charge or spin. Two-electron sets are bounded in bytes;
+    a curve profits only if about 40 geometries fit, so a set above 1/32 of the bound is not kept.
     """
-
-    SMALL_LIMIT = 256
 
     def __init__(self, limit_bytes: int):
         self.limit_bytes = limit_bytes
-        self._items: OrderedDict = OrderedDict()
-        self._small: OrderedDict = OrderedDict()
-        self.bytes = 0
-        self.hits = 0
-        self.misses = 0
+        self._eri = BoundedCache(limit_bytes, _nbytes)
+        self._one = BoundedCache(256)
 
     @staticmethod
     def key(mol):
@@ -129,84 +159,39 @@ class IntegralCache:
 
     def get(self, mol) -> np.ndarray:
         k = self.key(mol)
-        eri = self._items.get(k)
-        if eri is not None:
-            self._items.move_to_end(k)
-            self.hits += 1
-            return eri
-        self.misses += 1
-        eri = mol.intor("int2e", aosym="s8")
-        # a curve profits only if it can keep about 40 geometries: larger sets are not kept at all
-        if eri.nbytes <= self.limit_bytes / 32:
-            self._items[k] = eri
-            self.bytes += eri.nbytes
-            while self.bytes > self.limit_bytes:
-                _, old = self._items.popitem(last=False)
-                self.bytes -= old.nbytes
+        eri = self._eri.get(k)
+        if eri is None:
+            eri = mol.intor("int2e", aosym="s8")
+            if eri.nbytes <= self.limit_bytes / 32:
+                self._eri.put(k, eri)
         return eri
 
     def one_electron(self, mol):
         """(core Hamiltonian, overlap) of the geometry, read-only arrays."""
-        k = ("1e",) + self.key(mol)
-        got = self._small.get(k)
+        k = self.key(mol)
+        got = self._one.get(k)
         if got is None:
             h = mol.intor_symmetric("int1e_kin") + mol.intor_symmetric("int1e_nuc")
             s = mol.intor_symmetric("int1e_ovlp")
             for a in (h, s):
                 a.flags.writeable = False
-            got = self._small[k] = (h, s)
-            if len(self._small) > self.SMALL_LIMIT:
-                self._small.popitem(last=False)
-        else:
-            self._small.move_to_end(k)
+            got = (h, s)
+            self._one.put(k, got)
         return got
 
     def clear(self) -> None:
-        self._items.clear()
-        self._small.clear()
-        self.bytes = 0
+        self._eri.clear()
+        self._one.clear()
 
 
 #: 0.1 MB per geometry of N2 in 6-31G, 0.7 MB in cc-pVDZ, 4.7 MB in aug-cc-pVDZ (kept), 13 MB in
 #: cc-pVTZ (not kept)
 INTEGRALS = IntegralCache(160 * 2**20)
 
-
-class OrbitalCache:
-    """Orbitals of the points computed in this process (and sent back by forked sweeps), so the
-    analysis along a curve needs no Fock build; bounded in bytes, keyed like the store's points."""
-
-    def __init__(self, limit_bytes: int):
-        self.limit_bytes = limit_bytes
-        self.bytes = 0
-        self._items: OrderedDict = OrderedDict()
-
-    @staticmethod
-    def _size(orbitals) -> int:
-        return sum(np.asarray(a).nbytes for a in orbitals)
-
-    def put(self, key, orbitals) -> None:
-        if orbitals is None:
-            return
-        old = self._items.pop(key, None)
-        if old is not None:
-            self.bytes -= self._size(old)
-        self._items[key] = orbitals
-        self.bytes += self._size(orbitals)
-        while self.bytes > self.limit_bytes and self._items:
-            _, dropped = self._items.popitem(last=False)
-            self.bytes -= self._size(dropped)
-
-    def get(self, key):
-        return self._items.get(key)
-
-    def clear(self) -> None:
-        self._items.clear()
-        self.bytes = 0
-
-
+#: orbitals (mo_energy, mo_coeff, mo_occ) of the points computed in this process (and sent back by
+#: forked sweeps), keyed like the store's points, so the analysis along a curve needs no Fock build;
 #: 5 KB per point of N2 in 6-31G, 58 KB in cc-pVTZ
-ORBITALS = OrbitalCache(48 * 2**20)
+ORBITALS = BoundedCache(48 * 2**20, _nbytes)
 
 
 def orbitals_of(mf):

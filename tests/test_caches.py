@@ -1,0 +1,55 @@
+"""The per-process caches: what they return equals a fresh PySCF computation, and their bounds hold."""
+
+import numpy as np
+import pytest
+from pyscf import gto
+
+from lcao.levels import parse_level
+from lcao.scan.scf import INTEGRALS, BoundedCache, IntegralCache, build_molecule, make_scf
+
+
+def test_bounded_cache_evicts_least_recently_used_by_size():
+    c = BoundedCache(10, size=len)
+    c.put("a", "xxxx")
+    c.put("b", "xxxx")
+    assert c.get("a") == "xxxx"  # a is now the most recent
+    c.put("c", "xxxx")  # 12 > 10: b goes
+    assert c.get("b") is None and c.get("a") and c.get("c")
+    assert c.total == 8 and len(c) == 2
+    c.put("d", None)  # nothing to keep
+    assert len(c) == 2
+
+
+@pytest.mark.parametrize("basis,cart", [("6-31G", False), ("6-31G*", True)])
+def test_moved_template_molecule_equals_a_fresh_pyscf_build(basis, cart):
+    # the reference is PySCF itself: a molecule built from scratch at the same distance
+    level = parse_level(f"HF/{basis}")
+    build_molecule(("C", "O"), 2.0, level, 0, 0)  # the template, at another distance
+    mol = build_molecule(("C", "O"), 2.3, level, 0, 0)
+    ref = gto.M(atom="C 0 0 0; O 0 0 2.3", unit="Bohr", basis=basis, cart=cart, verbose=0)
+    for name in ("int1e_ovlp", "int1e_kin", "int1e_nuc"):
+        assert np.max(np.abs(mol.intor(name) - ref.intor(name))) < 1e-12, name
+    assert np.max(np.abs(INTEGRALS.get(mol) - ref.intor("int2e", aosym="s8"))) < 1e-12
+    assert mol.nelectron == ref.nelectron and mol.energy_nuc() == pytest.approx(ref.energy_nuc(), abs=1e-12)
+
+
+def test_scf_with_cached_integrals_equals_plain_pyscf():
+    from pyscf import scf
+
+    level = parse_level("HF/6-31G")
+    mol = build_molecule(("N", "N"), 2.1, level, 0, 0)
+    mf = make_scf(mol, "RHF")
+    mf.kernel()
+    ref = scf.RHF(gto.M(atom="N 0 0 0; N 0 0 2.1", unit="Bohr", basis="6-31G", verbose=0)).run()
+    assert mf.e_tot == pytest.approx(ref.e_tot, abs=1e-8)
+
+
+def test_large_integral_sets_are_not_kept():
+    level = parse_level("HF/6-31G")
+    mol = build_molecule(("N", "N"), 2.1, level, 0, 0)
+    size = INTEGRALS.get(mol).nbytes
+    small = IntegralCache(32 * size - 1)  # one set is just over 1/32 of the bound
+    small.get(mol)
+    assert len(small._eri) == 0
+    roomy = IntegralCache(32 * size)
+    assert roomy.get(mol) is roomy.get(mol)  # kept and reused
