@@ -15,6 +15,7 @@ from .points import CurvePoint
 from .scan.grid import Grid, default_grid, expected_bond_length_bohr
 from .scan.protocol import ScanResult, choose_multiplicity, probe_multiplicities, run_protocol
 from .species import Species, parse_species
+from .threads import budget, limited, threads_for
 
 log = logging.getLogger(__name__)
 
@@ -169,8 +170,6 @@ def curve(
     iso = resolve_isotopes(sp.atoms, isotopes)
     own = store is None
     st = MemoryStore() if own else store
-    from .threads import budget, limited, threads_for
-
     n_threads = threads if threads is not None else threads_for(basis_size(sp, lv))
     # one thread per process: independent sweeps go to forked processes instead
     sweep_workers = budget() if n_threads == 1 else 1

@@ -155,3 +155,22 @@ def test_members_on_two_workers_match_one_and_store_each_point_once(tmp_path):
     with Store(tmp_path / "two.sqlite") as st:
         assert st.count_points() == n_serial
     assert [r.values["we_cm1"] for r in again] == pytest.approx([r.values["we_cm1"] for r in rows], abs=1e-9)
+
+
+def test_large_basis_members_run_here_on_threads_and_the_rest_on_processes(tmp_path, monkeypatch, capsys):
+    # with the threshold lowered to 10 functions, N2/STO-3G (10) counts as large: it runs in this
+    # process (on threads), H2 and HeH+ (2 each) on the worker processes; the rows keep their order
+    from lcao import series, threads
+
+    monkeypatch.setattr(threads, "THREADED_FROM_NAO", 10)
+    here = []
+    real = series.run_series
+    monkeypatch.setattr(series, "run_series", lambda ms, st, progress=None: here.extend(m.species.label for m in ms) or real(ms, st, progress))
+    out = tmp_path / "o"
+    code = main(["series", "H2", "N2", "HeH+", "--level", "HF/STO-3G", "--points", "12", "--workers", "2", "-q",
+                 "--no-plots", "--store", str(tmp_path / "s.sqlite"), "--out", str(out)])
+    assert code == 0, capsys.readouterr().err
+    assert here == ["N2"]
+    doc = json.loads((out / "series.json").read_text())
+    assert [r["species"] for r in doc["rows"]] == ["H2", "N2", "HeH+"]
+    assert all(r["status"] == "ok" for r in doc["rows"])

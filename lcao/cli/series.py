@@ -38,6 +38,19 @@ def add_workers_option(p) -> None:
                    help="worker processes for the members (default: the CPU count; 1 runs everything in this process)")
 
 
+def _size(member) -> int:
+    """Basis functions of a member's molecule (0 when its basis lacks an element: it fails as a row)."""
+    from ..errors import LcaoError
+    from ..levels import check_basis_covers
+    from ..pipeline import basis_size
+
+    try:
+        check_basis_covers(member.level, member.species.atoms)
+        return basis_size(member.species, member.level)
+    except LcaoError:
+        return 0
+
+
 def _members_run(members, store_path, args, progress):
     """Run members in this process or on worker processes (one writer of the store either way)."""
     from ..errors import InputError
@@ -45,17 +58,29 @@ def _members_run(members, store_path, args, progress):
     from ..series import run_series
     from ..store import Store
 
+    from ..threads import THREADED_FROM_NAO, set_budget
+
     workers = args.workers if args.workers is not None else default_workers()
     if workers < 1:
         raise InputError(f"--workers must be at least 1, got {workers}")
-    if workers == 1 or len(members) == 1:
-        from ..threads import set_budget
-
-        set_budget(workers)  # --workers caps the processes: one member may still fork its sweeps
+    # large bases take the cores as threads, one member at a time, here; the rest go to processes
+    large = [i for i, m in enumerate(members) if _size(m) >= THREADED_FROM_NAO]
+    small = [i for i in range(len(members)) if i not in large]
+    rows = [None] * len(members)
+    set_budget(workers)  # --workers caps the processes (or threads): one member may fork its sweeps
+    if workers == 1 or len(small) <= 1:
+        todo = list(range(len(members)))
+    else:
+        got = run_parallel([members[i] for i in small], store_path, workers, reuse=not args.recompute,
+                           on_done=lambda m: progress(m.species.label, 0.0))
+        for i, row in zip(small, got):
+            rows[i] = row
+        todo = large
+    if todo:
         with Store(store_path, reuse=not args.recompute) as store:
-            return run_series(members, store, progress)
-    return run_parallel(members, store_path, workers, reuse=not args.recompute,
-                        on_done=lambda m: progress(m.species.label, 0.0))
+            for i, row in zip(todo, run_series([members[i] for i in todo], store, progress)):
+                rows[i] = row
+    return tuple(rows)
 
 
 def add_run_arguments(p: argparse.ArgumentParser) -> None:
