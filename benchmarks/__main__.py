@@ -9,6 +9,8 @@ Cases (each measured against its baseline in the same run):
   shell    the same series as a user sees it, whole processes from the shell: a hand-written script that
            loops over the species and distances computing energies only, against ``lcao series``;
   slow     (with --slow) a 40-point N2 curve at HF/cc-pVTZ.
+Curve cases take the best of ``--repeat`` runs of each side, and every tool run starts with the
+process caches cleared (``lcao.pipeline.clear_caches``). Both sides run on one thread per process.
 Peak memory is the largest resident set of the process (or of a child process for the shell case).
 """
 
