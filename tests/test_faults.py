@@ -29,6 +29,8 @@ def run(tmp_path, *args):
         (["series", "--electrons", "14"], ["--elements"]),
         (["series", "--electrons", "14", "--elements", "B,C", "--charges", "2..-2"], ["reversed"]),
         (["sheet", "XeF", "--constants", "handbook"], ["XeF"]),
+        (["curve", "N2", "--workers", "0"], ["--workers", "at least 1"]),
+        (["orbitals", "N2", "--r", "1.1", "--workers", "-2"], ["--workers", "at least 1"]),
     ],
 )
 def test_more_bad_inputs(tmp_path, capsys, args, fragments):

@@ -124,3 +124,17 @@ def test_analysis_from_kept_orbitals_equals_the_rebuilt_one(species, multiplicit
         for side in ("homo", "lumo"):
             assert a["frontier"][side]["label"] == b["frontier"][side]["label"]
             assert a["frontier"][side]["energy_hartree"] == pytest.approx(b["frontier"][side]["energy_hartree"], abs=1e-5)
+
+
+def test_workers_1_on_the_command_line_computes_in_one_process(tmp_path, monkeypatch):
+    from lcao.cli import main
+
+    def no_fork(groups, fn):
+        raise AssertionError("forked although --workers 1")
+
+    monkeypatch.setattr(workers, "run_groups", no_fork)
+    monkeypatch.setattr(threads, "_BUDGET", None)
+    code = main(["curve", "NO", "--level", "HF/STO-3G", "--from", "0.9", "--to", "3.0", "--points", "16", "--workers", "1",
+                 "-q", "--no-plots",
+                 "--store", str(tmp_path / "s.sqlite"), "--out", str(tmp_path / "o")])
+    assert code == 0

@@ -27,6 +27,7 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--out", metavar="DIR", help="output folder (default: lcao-results/SPECIES_METHOD_BASIS)")
     p.add_argument("--isotopes", metavar="A,B", help="mass numbers for the fit, e.g. 13,16 or 2H,1H (default most abundant)")
     p.add_argument("--no-plots", action="store_true", help="skip curve.png and curve.svg")
+    add_workers_option(p)
 
 
 def add_level_options(p) -> None:
@@ -50,6 +51,23 @@ def add_grid_options(p) -> None:
     g.add_argument("--from", dest="r_from", metavar="R", help="first distance, angstrom")
     g.add_argument("--to", dest="r_to", metavar="R", help="last distance, angstrom")
     g.add_argument("--points", metavar="N", help="number of distances (default 30)")
+
+
+def add_workers_option(p) -> None:
+    p.add_argument("--workers", type=_int_arg("--workers"), metavar="N",
+                   help="processes for the independent sweeps of a curve (default: the CPU count; 1 computes"
+                        " everything in this process)")
+
+
+def apply_workers(args) -> None:
+    """Check ``--workers`` and cap the cores this run may use (lcao.threads)."""
+    from ..threads import set_budget
+
+    if args.workers is not None and args.workers < 1:
+        from ..errors import InputError
+
+        raise InputError(f"--workers must be at least 1, got {args.workers}")
+    set_budget(args.workers)
 
 
 def add_store_options(p) -> None:
@@ -141,6 +159,7 @@ def run(args) -> int:
     from ..report import summary_lines
     from ..species import parse_species
 
+    apply_workers(args)
     species = parse_species(args.species, args.charge)
     level = resolve_level(args)
     grid = resolve_grid(args, species)

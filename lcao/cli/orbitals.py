@@ -9,6 +9,8 @@ from .curve import (
     add_grid_options,
     add_level_options,
     add_store_options,
+    add_workers_option,
+    apply_workers,
     check_outputs,
     open_store,
     resolve_grid,
@@ -38,6 +40,7 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
     add_grid_options(p)
     add_store_options(p)
     p.add_argument("--out", metavar="DIR", help="output folder (default: lcao-results/SPECIES_METHOD_BASIS_orbitals)")
+    add_workers_option(p)
     p.add_argument("--no-plots", action="store_true", help="skip the diagram")
 
 
@@ -101,6 +104,7 @@ def run(args) -> int:
     from ..species import parse_species
     from .curve import default_out_dir
 
+    apply_workers(args)
     species = parse_species(args.species, args.charge)
     level = resolve_level(args)
     grid = resolve_grid(args, species)

@@ -5,7 +5,16 @@ from __future__ import annotations
 import argparse
 import os
 
-from .curve import Progress, add_grid_options, add_store_options, check_outputs, open_store, resolve_grid
+from .curve import (
+    Progress,
+    add_grid_options,
+    add_store_options,
+    add_workers_option,
+    apply_workers,
+    check_outputs,
+    open_store,
+    resolve_grid,
+)
 
 HELP = "parameter sheet for kinetics models: constants in several units, thermochemistry, NASA polynomials"
 DESCRIPTION = (
@@ -32,6 +41,7 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
     add_store_options(p)
     p.add_argument("--out", metavar="DIR", help="output folder (default lcao-results/SPECIES_sheet)")
     p.add_argument("--no-plots", action="store_true", help="skip thermo.png/svg")
+    add_workers_option(p)
 
 
 def run(args) -> int:
@@ -41,6 +51,7 @@ def run(args) -> int:
     from ..sheet import build_sheet
     from ..species import parse_species
 
+    apply_workers(args)
     species = parse_species(args.species, args.charge)
     if args.multiplicity is not None:
         species.check_multiplicity(args.multiplicity)
