@@ -18,6 +18,11 @@ warm-started sweep and checks at every point whether it is unstable towards an
 unrestricted one. From the first unstable point outward it also computes the
 broken-symmetry unrestricted branch (a sweep outward from the instability and
 one inward from the atoms). Both branches are kept and labelled.
+
+Each sweep is one or two :class:`SweepTask` chains (the sweep from equilibrium
+runs as its outward half and its inward half, the latter seeded with the first
+point of the former); :meth:`_Runner.sweeps` runs independent tasks in this
+process or in forked ones (:mod:`lcao.scan.workers`) with the same results.
 """
 
 from __future__ import annotations
