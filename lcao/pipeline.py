@@ -174,7 +174,9 @@ def curve(
     # one thread per process: independent sweeps go to forked processes instead
     sweep_workers = budget() if n_threads == 1 else 1
     try:
-        with limited(n_threads):
+        from .scan.scf import kept_basis_files
+
+        with limited(n_threads), kept_basis_files():
             scan, along, refined, trials, mult, source, counts = _compute(
                 sp, lv, gr, multiplicity, st, analyse_points, fit and refine, progress, sweep_workers)
     finally:
@@ -193,7 +195,7 @@ def curve(
 
 def clear_caches() -> None:
     """Forget what this process has cached between curves: integrals, orbitals, built molecules, AO labels,
-    symmetry-adapted bases and atom states (benchmarks start each case cold; results never depend on
+    parsed basis files, symmetry-adapted bases and atom states (benchmarks start each case cold; results never depend on
     these caches)."""
     from . import atoms
     from .analysis import symmetry
@@ -204,6 +206,7 @@ def clear_caches() -> None:
     symmetry._CACHE.clear()
     scf._TEMPLATES.clear()
     scf._LABELS.clear()
+    scf._BASIS_FILES.clear()
     atoms._COMPUTED.clear()
 
 

@@ -5,7 +5,7 @@ import pytest
 from pyscf import gto
 
 from lcao.levels import parse_level
-from lcao.scan.scf import INTEGRALS, BoundedCache, IntegralCache, build_molecule, make_scf
+from lcao.scan.scf import INTEGRALS, BoundedCache, IntegralCache, build_molecule, kept_basis_files, make_scf
 
 
 def test_bounded_cache_evicts_least_recently_used_by_size():
@@ -53,3 +53,19 @@ def test_large_integral_sets_are_not_kept():
     assert len(small._eri) == 0
     roomy = IntegralCache(32 * size)
     assert roomy.get(mol) is roomy.get(mol)  # kept and reused
+
+
+@pytest.mark.parametrize("reference,spin", [("RHF", 0), ("UHF", 2)])
+def test_default_guess_with_kept_basis_files_equals_pyscf(reference, spin):
+    # the reference is PySCF's own default (minao) guess outside the block
+    from pyscf.gto import basis as gb
+
+    mol = build_molecule(("C", "O"), 2.2, parse_level("HF/6-31G"), 0, spin)
+    ref = np.asarray(make_scf(mol, reference).get_init_guess(mol, "minao"))
+    original = gb.load
+    with kept_basis_files():
+        assert gb.load is not original
+        first = np.asarray(make_scf(mol, reference).get_init_guess(mol, "minao"))
+        again = np.asarray(make_scf(mol, reference).get_init_guess(mol, "minao"))  # from the kept sets
+    assert gb.load is original
+    assert np.array_equal(first, ref) and np.array_equal(again, ref)
