@@ -138,3 +138,27 @@ def test_workers_1_on_the_command_line_computes_in_one_process(tmp_path, monkeyp
                  "-q", "--no-plots",
                  "--store", str(tmp_path / "s.sqlite"), "--out", str(tmp_path / "o")])
     assert code == 0
+
+
+@pytest.mark.parametrize("how", ["raises", "dies"])
+def test_a_failing_sweep_process_loses_nothing(how, monkeypatch, caplog):
+    # a child that raises, or dies without a word, has its part computed again here: same curve
+    from lcao.scan import protocol
+
+    parent = os.getpid()
+    real = protocol._Runner._run_group
+
+    def flaky(self, group, in_child, r_all, out):
+        if in_child and os.getpid() != parent:
+            if how == "raises":
+                raise RuntimeError("simulated failure")
+            os._exit(3)
+        return real(self, group, in_child, r_all, out)
+
+    one = _curve("NO", "HF/STO-3G", 1, monkeypatch, multiplicity=2)
+    monkeypatch.setattr(protocol._Runner, "_run_group", flaky)
+    with caplog.at_level("WARNING", logger="lcao.scan.workers"):
+        two = _curve("NO", "HF/STO-3G", 2, monkeypatch, multiplicity=2)
+    assert "computing its part here" in caplog.text
+    assert [p.energy_hartree for p in one.points] == [p.energy_hartree for p in two.points]
+    assert one.computed == two.computed

@@ -12,7 +12,8 @@ other thread alive in this process (a forked child inherits locks held by other 
 inside a daemonic pool worker (a series already spreads its members over processes), and
 with at least two cores for this process. Each child writes its points to the file store
 itself (so an interrupted run keeps them) and sends them back over a pipe; the parent adds
-them to its own store, which for the in-memory store is the only copy.
+them to its own store, which for the in-memory store is the only copy. A child that fails or
+dies has its part computed again in the parent.
 """
 
 from __future__ import annotations
@@ -22,8 +23,6 @@ import multiprocessing as mp
 import os
 import sys
 import threading
-
-from ..errors import CalculationError
 
 log = logging.getLogger(__name__)
 
@@ -69,12 +68,14 @@ def _child(fn, group, conn, parent):
 def run_groups(groups, fn):
     """Run ``fn(group, in_child)`` for every group: the first here, the others in forked children.
 
+    A child that fails or dies (other than by an interrupt) loses nothing: its group is run again
+    here, as the child would have run it (``in_child`` True), with a warning.
+
     Returns:
         the results in group order.
 
     Raises:
-        CalculationError: a child failed or died; the children are stopped when this
-        process is interrupted.
+        KeyboardInterrupt: the children are stopped when this process is interrupted.
     """
     ctx = mp.get_context("fork")
     children = []
@@ -84,21 +85,23 @@ def run_groups(groups, fn):
             proc = ctx.Process(target=_child, args=(fn, group, send, os.getpid()), daemon=True)
             proc.start()
             send.close()
-            children.append((proc, recv))
+            children.append((proc, recv, group))
         results = [fn(groups[0], False)]
-        for proc, recv in children:
+        for proc, recv, group in children:
             try:
                 status, payload = recv.recv()
             except EOFError:
-                proc.join()
-                raise CalculationError(f"a sweep worker process ended without a result (exit code {proc.exitcode})") from None
+                status, payload = "error", f"ended without a result (exit code {proc.exitcode})"
             proc.join()
             if status != "ok":
-                raise CalculationError(f"a sweep worker process failed: {payload}")
+                if payload.startswith("KeyboardInterrupt"):
+                    raise KeyboardInterrupt
+                log.warning("a sweep worker process failed (%s); computing its part here", payload)
+                payload = fn(group, True)
             results.append(payload)
         return results
     finally:
-        for proc, recv in children:
+        for proc, recv, _ in children:
             if proc.is_alive():
                 proc.terminate()
                 proc.join()
