@@ -128,9 +128,13 @@ def test_two_runs_writing_one_store_both_finish_and_store_each_point_once(tmp_pa
     assert [p["energy_hartree"] for p in da["points"]] == pytest.approx([p["energy_hartree"] for p in db["points"]], abs=1e-9)
 
 
+#: long enough (about 100 points) that an interrupt after the first few lands mid-run
+LONG_CURVE = ["curve", "NO", "--level", "HF/6-31G", "--from", "0.9", "--to", "3.5", "--points", "40", "-q", "--no-plots"]
+
+
 def test_ctrl_c_stops_cleanly_and_says_how_to_resume(tmp_path):
     store = str(tmp_path / "s.sqlite")
-    proc = spawn(CURVE + ["--store", store, "--out", str(tmp_path / "o")])
+    proc = spawn(LONG_CURVE + ["--store", store, "--out", str(tmp_path / "o")])
     deadline = time.time() + 120
     while count_rows(store) < 8 and time.time() < deadline and proc.poll() is None:
         time.sleep(0.05)
@@ -143,7 +147,7 @@ def test_ctrl_c_stops_cleanly_and_says_how_to_resume(tmp_path):
     kept = count_rows(store)
     assert kept >= 8
     assert not (tmp_path / "o" / "curve.json").exists()
-    again = spawn(CURVE + ["--store", store, "--out", str(tmp_path / "o")])
+    again = spawn(LONG_CURVE + ["--store", store, "--out", str(tmp_path / "o")])
     assert again.wait(timeout=300) == 0
     doc = json.loads((tmp_path / "o" / "curve.json").read_text())
     assert doc["counts"]["reused_from_store"] >= kept
