@@ -72,9 +72,9 @@ class WorkerStore:
 
 def _init(queue, path, reuse, share, parent):
     global _QUEUE, _STORE
-    from .scan.workers import _die_with_parent
+    from .scan.workers import die_with_parent
 
-    _die_with_parent(parent)
+    die_with_parent(parent)
     os.environ["OMP_NUM_THREADS"] = str(share)
     from pyscf import lib
 

@@ -38,10 +38,9 @@ def fork_possible(budget: int) -> bool:
     return True
 
 
-def _die_with_parent(parent: int) -> None:
+def die_with_parent(parent: int) -> None:
     """Ask Linux to kill this child when its parent dies (a SIGKILLed run leaves no orphans)."""
     import ctypes
-    import os
     import signal
 
     try:
@@ -53,7 +52,7 @@ def _die_with_parent(parent: int) -> None:
 
 
 def _child(fn, group, conn, parent):
-    _die_with_parent(parent)
+    die_with_parent(parent)
     try:
         conn.send(("ok", fn(group, True)))
     except BaseException as exc:  # noqa: BLE001 - reported to the parent, which decides
