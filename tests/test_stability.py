@@ -80,3 +80,33 @@ def test_same_decisions_and_energies_as_davidson(monkeypatch):
         results[route] = (unstable_in, unstable_out, sol.energy, sol.stability)
     assert results["dense"][:2] == results["davidson"][:2] == (False, True)
     assert abs(results["dense"][2] - results["davidson"][2]) < 1e-8
+
+
+@pytest.mark.parametrize("r", [2.0, 3.2])
+def test_davidson_route_decides_as_pyscf_stability(r):
+    # the reference is PySCF's own stability analysis (pyscf.scf.stability, default tolerances), in
+    # 6-311G* where lcao takes its Davidson route: N2 RHF internal and RHF -> UHF, N2 UHF, NO ROHF
+    from pyscf.scf import stability
+
+    level = parse_level("HF/6-311G*")
+
+    def conv(symbols, spin, reference):
+        mf = make_scf(build_molecule(symbols, r, level, 0, spin), reference)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            mf.kernel()
+        assert mf.converged
+        return mf
+
+    rhf, uhf, rohf = conv(("N", "N"), 0, "RHF"), conv(("N", "N"), 0, "UHF"), conv(("N", "O"), 1, "ROHF")
+    assert not dense.dense_possible(rhf)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        cases = [
+            (dense.davidson_internal(rhf, "RHF"), stability.rhf_internal(rhf, verbose=0, return_status=True, nroots=1)[1]),
+            (dense.davidson_rhf_to_uhf(rhf), stability.rhf_external(rhf, verbose=0, return_status=True, nroots=1)[1]),
+            (dense.davidson_internal(uhf, "UHF"), stability.uhf_internal(uhf, verbose=0, return_status=True, nroots=1)[1]),
+            (dense.davidson_internal(rohf, "ROHF"), stability.rohf_internal(rohf, verbose=0, return_status=True, nroots=1)[1]),
+        ]
+    for (e, _v), pyscf_stable in cases:
+        assert (e is None) == pyscf_stable

@@ -337,37 +337,34 @@ def _ladder(mol, reference: str, dm0, *, diis_cycles: int = 80, level_shift: boo
 def _stability_step(mf, reference: str):
     """One internal stability check; returns new orbitals or None when stable.
 
-    RHF and UHF solutions with the integrals in memory and a small rotation space use the dense
-    Hessian of :mod:`lcao.scan.stability`; the rest PySCF's Davidson iteration.
+    RHF and UHF solutions with the integrals in memory and a small basis use the dense Hessian
+    of :mod:`lcao.scan.stability`, the rest its Davidson route on PySCF's Hessian-vector products.
     """
     if _rotations(mf) == 0:
         return None
+    from pyscf.lib.exceptions import LinearDependencyError
     from pyscf.scf import stability
 
-    from . import stability as dense
+    from . import stability as st
 
-    if reference in ("RHF", "UHF") and dense.dense_possible(mf):
-        e, v = dense.internal(mf, reference)
-        if e is None or not e < dense.UNSTABLE_BELOW:
-            return None
-        if reference == "RHF":
-            return stability._rotate_mo(mf.mo_coeff, mf.mo_occ, v)
-        na = int(np.count_nonzero(mf.mo_occ[0] > 0) * np.count_nonzero(mf.mo_occ[0] == 0))
-        return (stability._rotate_mo(mf.mo_coeff[0], mf.mo_occ[0], v[:na]),
-                stability._rotate_mo(mf.mo_coeff[1], mf.mo_occ[1], v[na:]))
-
-    from pyscf.lib.exceptions import LinearDependencyError
-
-    fn = {"UHF": stability.uhf_internal, "ROHF": stability.rohf_internal, "RHF": stability.rhf_internal}[reference]
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            mo, stable = fn(mf, verbose=0, return_status=True, nroots=1)
+            if reference in ("RHF", "UHF") and st.dense_possible(mf):
+                e, v = st.internal(mf, reference)
+            else:
+                e, v = st.davidson_internal(mf, reference)
     except (LinearDependencyError, ZeroDivisionError) as exc:
         # Davidson finds no trial vector (e.g. a single open shell with nothing to rotate)
         log.debug("stability analysis skipped: %s", exc)
         return None
-    return None if stable else mo
+    if e is None or not e < st.UNSTABLE_BELOW:
+        return None
+    if np.asarray(mf.mo_coeff).ndim == 2:
+        return stability._rotate_mo(mf.mo_coeff, mf.mo_occ, v)
+    na = int(np.count_nonzero(mf.mo_occ[0] > 0) * np.count_nonzero(mf.mo_occ[0] == 0))
+    return (stability._rotate_mo(mf.mo_coeff[0], mf.mo_occ[0], v[:na]),
+            stability._rotate_mo(mf.mo_coeff[1], mf.mo_occ[1], v[na:]))
 
 
 def solve(mol, reference: str, dm0=None, *, follow_stability: bool = True) -> Solution:
@@ -448,18 +445,12 @@ def unstable_towards_uhf(mf):
 
     from . import stability as dense
 
-    if dense.dense_possible(mf):
-        e, v = dense.rhf_to_uhf(mf)
-        if e is None or not e < dense.UNSTABLE_BELOW:
-            return False, None
-        mo_a, mo_b = stability._rotate_mo(mf.mo_coeff, mf.mo_occ, v), mf.mo_coeff
-    else:
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")
-            (mo_a, mo_b), stable = stability.rhf_external(
-                mf, with_symmetry=False, verbose=0, return_status=True, nroots=1)
-        if stable:
-            return False, None
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        e, v = dense.rhf_to_uhf(mf) if dense.dense_possible(mf) else dense.davidson_rhf_to_uhf(mf)
+    if e is None or not e < dense.UNSTABLE_BELOW:
+        return False, None
+    mo_a, mo_b = stability._rotate_mo(mf.mo_coeff, mf.mo_occ, v), mf.mo_coeff
     occ = np.asarray(mf.mo_occ) / 2.0
     dma = (mo_a * occ) @ mo_a.T
     dmb = (mo_b * occ) @ mo_b.T

@@ -178,3 +178,51 @@ def internal(mf, reference: str):
 def rhf_to_uhf(mf):
     """Lowest RHF -> UHF (triplet) mode of a converged closed-shell RHF solution, or (None, None)."""
     return lowest_mode(_rhf_pair(mf)[1])
+
+
+#: The Davidson route (larger bases): a first pass to this eigenvalue tolerance, and a second at
+#: PySCF's default (1e-4) only when the first lowest value lands between UNSTABLE_BELOW and
+#: CLEAR_MARGIN. A Ritz value bounds the lowest eigenvalue from above, so a first value below the
+#: threshold is already decisive, and one above the margin is far outside the first pass's error.
+LOOSE_TOL = 1e-3
+CLEAR_MARGIN = 1e-2
+
+
+def _davidson(hx, hdiag, x0):
+    from pyscf import lib
+
+    def precond(dx, e, _x0):
+        hd = hdiag - e
+        hd[abs(hd) < 1e-8] = 1e-8
+        return dx / hd
+
+    e, v = lib.davidson(hx, x0, precond, tol=LOOSE_TOL, nroots=1, verbose=0)
+    if UNSTABLE_BELOW <= e <= CLEAR_MARGIN:
+        e, v = lib.davidson(hx, v, precond, tol=1e-4, nroots=1, verbose=0)
+    return (float(e), np.asarray(v)) if e < UNSTABLE_BELOW else (None, None)
+
+
+def davidson_internal(mf, reference: str):
+    """Lowest internal mode by Davidson iteration on PySCF's Hessian-vector products (the set-up
+    of ``pyscf.scf.stability.*_internal``), or (None, None) when stable."""
+    from pyscf.soscf import newton_ah
+
+    gen = {"RHF": newton_ah.gen_g_hop_rhf, "UHF": newton_ah.gen_g_hop_uhf, "ROHF": newton_ah.gen_g_hop_rohf}[reference]
+    g, hop, hdiag = gen(mf, mf.mo_coeff, mf.mo_occ, with_symmetry=False)
+    hdiag = hdiag * 2
+    x0 = np.zeros_like(g)
+    x0[g != 0] = 1.0 / hdiag[g != 0]
+    x0[np.argmin(hdiag)] = 1
+    return _davidson(lambda x: hop(x).real * 2, hdiag, x0)
+
+
+def davidson_rhf_to_uhf(mf):
+    """Lowest RHF -> UHF (triplet) mode by Davidson iteration, or (None, None) when stable. Only
+    the triplet problem is solved (``pyscf.scf.stability.rhf_external`` solves the real ->
+    complex one as well, which the protocol does not use)."""
+    from pyscf.scf import stability
+
+    _, _, hop, hdiag = stability._gen_hop_rhf_external(mf, with_symmetry=False)
+    x0 = np.zeros_like(hdiag)
+    x0[hdiag > 1e-5] = 1.0 / hdiag[hdiag > 1e-5]
+    return _davidson(hop, hdiag, x0)
