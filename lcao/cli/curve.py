@@ -153,17 +153,24 @@ def check_outputs(args, out):
     return out
 
 
-def run(args) -> int:
-    from ..export import write_outputs
-    from ..pipeline import curve, resolve_inputs
-    from ..report import summary_lines
+def resolve_args(args):
+    """Species, level and grid of a curve-like command, checked (and the core cap applied)."""
+    from ..pipeline import resolve_inputs
     from ..species import parse_species
 
     apply_workers(args)
     species = parse_species(args.species, args.charge)
     level = resolve_level(args)
     grid = resolve_grid(args, species)
-    species, level, grid = resolve_inputs(species, level, grid, args.multiplicity)
+    return resolve_inputs(species, level, grid, args.multiplicity)
+
+
+def run(args) -> int:
+    from ..export import write_outputs
+    from ..pipeline import curve
+    from ..report import summary_lines
+
+    species, level, grid = resolve_args(args)
     if len(grid if grid is not None else ()) and len(grid) < MIN_CURVE_POINTS:
         from ..errors import GridError
 

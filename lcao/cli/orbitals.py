@@ -10,11 +10,9 @@ from .curve import (
     add_level_options,
     add_store_options,
     add_workers_option,
-    apply_workers,
     check_outputs,
     open_store,
-    resolve_grid,
-    resolve_level,
+    resolve_args,
 )
 
 HELP = "analyse the orbitals at one distance: characters, bond orders, magnetism, overlaps"
@@ -100,16 +98,11 @@ def table_lines(res) -> list[str]:
 def run(args) -> int:
     from ..export import ORBITAL_WRITERS
     from ..export.curve_files import write_outputs
-    from ..pipeline import orbitals, resolve_inputs
-    from ..species import parse_species
+    from ..pipeline import orbitals
     from .curve import default_out_dir
 
-    apply_workers(args)
-    species = parse_species(args.species, args.charge)
-    level = resolve_level(args)
-    grid = resolve_grid(args, species)
     r = None if args.at_minimum else _distance(args.r)
-    species, level, grid = resolve_inputs(species, level, grid, args.multiplicity)
+    species, level, grid = resolve_args(args)
     out = check_outputs(args, args.out or default_out_dir(species, level) + "_orbitals")
     progress = Progress(not args.quiet, f"{species.label} {level.text}")
     try:
