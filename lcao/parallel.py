@@ -42,17 +42,17 @@ class WorkerStore:
         self.local_atoms: dict = {}
 
     def get_point(self, species, multiplicity, level, sweep, r_bohr):
-        from .store import Store
+        from .store import point_key
 
-        key = Store._point_key(species, multiplicity, level, sweep, r_bohr)
+        key = point_key(species, multiplicity, level, sweep, r_bohr)
         if key in self.local:
             return self.local[key]
         return self.ro.get_point(species, multiplicity, level, sweep, r_bohr) if self.reuse else None
 
     def put_point(self, species, multiplicity, level, sweep, point) -> bool:
-        from .store import Store
+        from .store import point_key
 
-        self.local[Store._point_key(species, multiplicity, level, sweep, point.r_bohr)] = point
+        self.local[point_key(species, multiplicity, level, sweep, point.r_bohr)] = point
         self.queue.put(("point", species, multiplicity, level, sweep, point))
         return True
 

@@ -268,10 +268,10 @@ def point_summaries(species, multiplicity, level, scan, store, workers: int = 1)
     from .scan.workers import split_map
 
     from .scan.scf import ORBITALS
-    from .store import Store
+    from .store import point_key
 
     jobs = [(p, stored_density(store, species, multiplicity, level, p),
-             ORBITALS.get(Store._point_key(species, multiplicity, level, p.sweep, p.r_bohr))) if p.trusted else None
+             ORBITALS.get(point_key(species, multiplicity, level, p.sweep, p.r_bohr))) if p.trusted else None
             for p in scan.points]
     return tuple(split_map(lambda job: _summary(species, multiplicity, level, scan, job), jobs, workers))
 
@@ -394,12 +394,12 @@ def orbitals(
             raise CalculationError(f"the solution at {chosen.r_angstrom:.4f} A is flagged: {chosen.flag}")
         from .analysis.orbitals import analyse_stored
         from .scan.scf import ORBITALS
-        from .store import Store
+        from .store import point_key
 
         mult = one.multiplicity
         analysis = analyse_stored(sp, mult, lv, point_reference(scan, chosen), chosen.r_bohr,
                                   stored_density(st, sp, mult, lv, chosen),
-                                  ORBITALS.get(Store._point_key(sp, mult, lv, chosen.sweep, chosen.r_bohr)))
+                                  ORBITALS.get(point_key(sp, mult, lv, chosen.sweep, chosen.r_bohr)))
         others = {k: v.energy_hartree for k, v in cands.items() if v is not chosen}
         atoms = atom_levels(scan.limit, lv)
     finally:

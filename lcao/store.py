@@ -84,6 +84,11 @@ def _now() -> str:
     return _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds")
 
 
+def point_key(species, multiplicity, level, sweep, r_bohr) -> tuple:
+    """The key of a point: in the store, in a worker's own points and in the orbital cache."""
+    return (species.label, species.charge, multiplicity, level.key(), PROTOCOL_VERSION, sweep, r_key(r_bohr))
+
+
 class Store:
     """The SQLite results store. Use as a context manager or call :meth:`close`.
 
@@ -155,12 +160,9 @@ class Store:
         self.close()
 
     # points -----------------------------------------------------------------
-    @staticmethod
-    def _point_key(species, multiplicity, level, sweep, r_bohr):
-        return (species.label, species.charge, multiplicity, level.key(), PROTOCOL_VERSION, sweep, r_key(r_bohr))
 
     def get_point(self, species, multiplicity, level, sweep, r_bohr) -> StoredPoint | None:
-        key = self._point_key(species, multiplicity, level, sweep, r_bohr)
+        key = point_key(species, multiplicity, level, sweep, r_bohr)
         if not self.reuse and key not in self._written:
             return None
         row = self.conn.execute(
@@ -190,7 +192,7 @@ class Store:
             raise StoreError(f"store {self.path} is open read-only")
         shape, blob = _pack(point.dm)
         energy = None if not np.isfinite(point.energy) else float(point.energy)
-        key = self._point_key(species, multiplicity, level, sweep, point.r_bohr)
+        key = point_key(species, multiplicity, level, sweep, point.r_bohr)
         verb = "INSERT OR IGNORE" if self.reuse else "INSERT OR REPLACE"
         self._written.add(key)
         cur = self.conn.execute(

@@ -35,7 +35,7 @@ import numpy as np
 
 from ..atoms import AtomCache, SeparatedAtoms, fragment_guesses, needed_states, separated_atoms
 from ..points import CurvePoint, outlier_reasons
-from ..store import Store, StoredPoint
+from ..store import StoredPoint, point_key
 from ..units import bohr_to_angstrom
 from .grid import Grid, expected_bond_length_bohr
 from .scf import ORBITALS, build_molecule, orbitals_of, solve, solver_for, unstable_towards_uhf
@@ -135,7 +135,7 @@ class _Runner:
         p = StoredPoint(r, sol.energy, sol.converged, sol.cycles, sol.s2, sol.rescue, sol.stability, sol.reason, extra,
                         sol.dm, orb)
         self.store.put_point(self.species, self.multiplicity, self.level, sweep, p)
-        ORBITALS.put(Store._point_key(self.species, self.multiplicity, self.level, sweep, r), orb)
+        ORBITALS.put(point_key(self.species, self.multiplicity, self.level, sweep, r), orb)
         self.computed += 1
         self.fresh.add((sweep, r))
         log.debug("%s %s r=%.4f bohr E=%.8f conv=%s cycles=%d", self.species.label, sweep, r, sol.energy, sol.converged, sol.cycles)
@@ -215,7 +215,7 @@ class _Runner:
                             self.reused -= 1
                         continue
                     self.store.put_point(self.species, self.multiplicity, self.level, name, pt)
-                    ORBITALS.put(Store._point_key(self.species, self.multiplicity, self.level, name, pt.r_bohr), pt.orbitals)
+                    ORBITALS.put(point_key(self.species, self.multiplicity, self.level, name, pt.r_bohr), pt.orbitals)
                     mine[i] = pt
                     self._tick(name, pt.r_bohr)
         return out

@@ -69,6 +69,19 @@ def _fock_diff(f_mo, no, nv):
     return np.einsum("ab,ij->aibj", fvv, np.eye(no)) - np.einsum("ij,ab->aibj", foo, np.eye(nv))
 
 
+def _spin_set(mo_coeff, mo_occ, fock_ao):
+    """Occupied and virtual orbitals of one spin set and their Fock-difference term D."""
+    occ = np.asarray(mo_occ) > 0
+    co, cv = mo_coeff[:, occ], mo_coeff[:, ~occ]
+    c = np.hstack([co, cv])
+    return co, cv, _fock_diff(c.T @ fock_ao @ c, co.shape[1], cv.shape[1])
+
+
+def _exchange_part(d, aibj, abij):
+    """D - (ab|ij) - (aj|bi): the same-spin part shared by all three Hessians."""
+    return d - abij.transpose(0, 2, 1, 3) - aibj.transpose(0, 3, 2, 1)
+
+
 def rhf_hessians(mo_coeff, mo_occ, fock_ao, eri):
     """(singlet, triplet) orbital Hessians of a closed-shell RHF solution.
 
@@ -77,14 +90,10 @@ def rhf_hessians(mo_coeff, mo_occ, fock_ao, eri):
         fock_ao: the Fock matrix of the solution's density, AO basis.
         eri: two-electron integrals, 8-fold packed.
     """
-    occ = np.asarray(mo_occ) > 0
-    co, cv = mo_coeff[:, occ], mo_coeff[:, ~occ]
-    c = np.hstack([co, cv])
-    no, nv = co.shape[1], cv.shape[1]
-    d = _fock_diff(c.T @ fock_ao @ c, no, nv)
-    aibj, abij = _blocks(_unpack(eri, c.shape[0]), co, cv)
-    common = d - abij.transpose(0, 2, 1, 3) - aibj.transpose(0, 3, 2, 1)
-    n = no * nv
+    co, cv, d = _spin_set(mo_coeff, mo_occ, fock_ao)
+    aibj, abij = _blocks(_unpack(eri, co.shape[0]), co, cv)
+    common = _exchange_part(d, aibj, abij)
+    n = co.shape[1] * cv.shape[1]
     singlet = 4.0 * (common + 4.0 * aibj).reshape(n, n)
     triplet = common.reshape(n, n)
     return singlet, triplet
@@ -93,14 +102,7 @@ def rhf_hessians(mo_coeff, mo_occ, fock_ao, eri):
 def uhf_hessian(mo_coeff, mo_occ, fock_ao, eri):
     """Orbital Hessian of a UHF solution (alpha rotations first)."""
     e4 = _unpack(eri, mo_coeff[0].shape[0])
-    cos, cvs, ds = [], [], []
-    for s in (0, 1):
-        occ = np.asarray(mo_occ[s]) > 0
-        co, cv = mo_coeff[s][:, occ], mo_coeff[s][:, ~occ]
-        c = np.hstack([co, cv])
-        cos.append(co)
-        cvs.append(cv)
-        ds.append(_fock_diff(c.T @ fock_ao[s] @ c, co.shape[1], cv.shape[1]))
+    cos, cvs, ds = zip(*(_spin_set(mo_coeff[s], mo_occ[s], fock_ao[s]) for s in (0, 1)))
     sizes = [cos[s].shape[1] * cvs[s].shape[1] for s in (0, 1)]
     h = np.zeros((sum(sizes), sum(sizes)))
     off = [0, sizes[0]]
@@ -112,7 +114,7 @@ def uhf_hessian(mo_coeff, mo_occ, fock_ao, eri):
         if s == 0:
             left_a = left
         aibj, abij = _blocks(e4, cos[s], cvs[s], left)
-        blk = 2.0 * (ds[s] - abij.transpose(0, 2, 1, 3) - aibj.transpose(0, 3, 2, 1) + 2.0 * aibj)
+        blk = 2.0 * (_exchange_part(ds[s], aibj, abij) + 2.0 * aibj)
         h[off[s]:off[s] + sizes[s], off[s]:off[s] + sizes[s]] = blk.reshape(sizes[s], sizes[s])
     if sizes[0] and sizes[1]:
         # (i_a a_a | j_b b_b) -> (a_a i_a | b_b j_b)
