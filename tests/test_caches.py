@@ -69,3 +69,65 @@ def test_default_guess_with_kept_basis_files_equals_pyscf(reference, spin):
         again = np.asarray(make_scf(mol, reference).get_init_guess(mol, "minao"))  # from the kept sets
     assert gb.load is original
     assert np.array_equal(first, ref) and np.array_equal(again, ref)
+
+
+@pytest.mark.parametrize("basis", ["STO-3G", "6-31G"])
+def test_matrix_product_jk_equals_pyscf_build(basis):
+    # the reference is PySCF's own in-core build (pyscf.scf.hf.dot_eri_dm) on the same integrals
+    from pyscf.scf import hf
+
+    from lcao.scan import jk
+
+    mol = build_molecule(("C", "O"), 2.2, parse_level(f"HF/{basis}"), 0, 0)
+    eri = INTEGRALS.get(mol)
+    n = mol.nao
+    rng = np.random.default_rng(7)
+    sym = rng.normal(size=(n, n))
+    sym = sym + sym.T
+    pair = np.array([sym, rng.normal(size=(n, n)) + np.eye(n)])  # the second not symmetric
+    mats = jk.jk_matrices(jk.unpacked(eri, n))
+    for dm, hermi in ((sym, 1), (pair, 0)):
+        vj, vk = jk.contract(*mats, dm)
+        rj, rk = hf.dot_eri_dm(eri, dm, hermi=hermi)
+        assert np.max(np.abs(vj - rj)) < 1e-11 and np.max(np.abs(vk - rk)) < 1e-11
+    vj, vk = jk.contract(*mats, sym, with_k=False)
+    assert vk is None and vj.shape == (n, n)
+
+
+def test_scf_objects_use_matrix_product_jk_only_for_small_basis_sets():
+    from lcao.scan import jk
+
+    small = make_scf(build_molecule(("N", "N"), 2.1, parse_level("HF/6-31G"), 0, 0), "UHF")
+    large = make_scf(build_molecule(("N", "N"), 2.1, parse_level("HF/cc-pVDZ"), 0, 0), "UHF")
+    assert small.mol.nao <= jk.MAX_NAO < large.mol.nao
+    assert "get_jk" in vars(small) and "get_jk" not in vars(large)
+    assert small.chkfile is None and large.chkfile is None
+    from pyscf.scf import hf
+
+    assert hf.MUTE_CHKFILE is False  # restored after construction
+
+
+def test_orthogonaliser_equals_pyscf_canonical_orthogonalisation():
+    from pyscf.scf import hf
+
+    mol = build_molecule(("N", "O"), 2.2, parse_level("HF/6-31G"), 0, 1)
+    x = INTEGRALS.orthogonaliser(mol)
+    ref = hf.check_linear_dependency(mol.intor("int1e_ovlp"))
+    assert x.shape == ref.shape  # the same functions kept; columns are eigenvectors, signs arbitrary
+    assert np.max(np.abs(x @ x.T - ref @ ref.T)) < 1e-9  # X X^T = S^-1 without linear dependence
+    s = INTEGRALS.one_electron(mol)[1]
+    assert np.max(np.abs(x.T @ s @ x - np.eye(x.shape[1]))) < 1e-10  # X^T S X = 1 (its definition)
+
+
+def test_prefetched_integrals_equal_fresh_ones():
+    # computed over two processes where a fork is possible, here otherwise; the reference is PySCF
+    cache = IntegralCache(160 * 2**20)
+    level = parse_level("HF/STO-3G")
+    mols = [build_molecule(("B", "F"), r, level, 0, 0) for r in (2.0, 2.4, 2.8, 3.2)]
+    cache.prefetch(mols, 2)
+    for mol in mols:
+        ref = gto.M(atom=f"B 0 0 0; F 0 0 {mol.atom_coord(1)[2]}", unit="Bohr", basis="STO-3G", verbose=0)
+        assert np.max(np.abs(cache.get(mol) - ref.intor("int2e", aosym="s8"))) < 1e-12
+        h, s = cache.one_electron(mol)
+        assert np.max(np.abs(s - ref.intor("int1e_ovlp"))) < 1e-12
+        assert np.max(np.abs(h - ref.intor("int1e_kin") - ref.intor("int1e_nuc"))) < 1e-12

@@ -22,7 +22,12 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from . import jk
+
 log = logging.getLogger(__name__)
+
+#: J/K as matrix products up to :data:`lcao.scan.jk.MAX_NAO` functions (see :mod:`lcao.scan.jk`)
+SMALL_BASIS_JK = True
 
 CONV_TOL = 1e-9
 #: An internal instability must lower the energy by this much to be followed.
@@ -170,16 +175,57 @@ class IntegralCache:
 
     def one_electron(self, mol):
         """(core Hamiltonian, overlap) of the geometry, read-only arrays."""
+        return self._one_set(mol)[:2]
+
+    def orthogonaliser(self, mol):
+        """PySCF's canonical orthogonalisation of the overlap (``check_linear_dependency``), read-only."""
+        return self._one_set(mol)[2]
+
+    def _one_set(self, mol):
+        from pyscf.scf import hf
+
         k = self.key(mol)
         got = self._one.get(k)
         if got is None:
             h = mol.intor_symmetric("int1e_kin") + mol.intor_symmetric("int1e_nuc")
             s = mol.intor_symmetric("int1e_ovlp")
-            for a in (h, s):
+            x = hf.check_linear_dependency(s)
+            for a in (h, s, x):
                 a.flags.writeable = False
-            got = (h, s)
+            got = (h, s, x)
             self._one.put(k, got)
         return got
+
+    def prefetch(self, mols, workers: int) -> int:
+        """Compute the integrals of ``mols`` not yet kept, split over this process and forked ones
+        (:func:`lcao.scan.workers.split_map`), and keep them; returns how many geometries.
+
+        Sweeps in different processes visit the same distances: computed first and inherited by
+        the forked sweeps, each set is computed once, and on both cores. Nothing is done for one
+        worker, for sets this cache would not keep, or when they would fill half of it.
+        """
+        from .workers import fork_possible, split_map
+
+        todo, seen = [], set()
+        for mol in mols:
+            k = self.key(mol)
+            if k not in seen and self._eri.get(k) is None:
+                seen.add(k)
+                todo.append(mol)
+        if len(todo) < 2 or not fork_possible(workers):
+            return 0
+        pairs = todo[0].nao * (todo[0].nao + 1) // 2
+        nbytes = 8 * pairs * (pairs + 1) // 2
+        if nbytes > self.limit_bytes / 32 or nbytes * len(todo) > self.limit_bytes / 2:
+            return 0
+        got = split_map(lambda mol: (mol.intor("int2e", aosym="s8"), self._one_set(mol)), todo, workers)
+        for mol, (eri, one) in zip(todo, got):
+            k = self.key(mol)
+            self._eri.put(k, eri)
+            for a in one:
+                a.flags.writeable = False
+            self._one.put(k, one)
+        return len(todo)
 
     def clear(self) -> None:
         self._eri.clear()
@@ -261,17 +307,28 @@ def make_scf(mol, reference: str):
     """
     from pyscf import scf
 
+    from pyscf.scf import hf
+
     cls = {"RHF": scf.RHF, "UHF": scf.UHF, "ROHF": scf.ROHF}[reference]
-    mf = cls(mol)
+    muted, hf.MUTE_CHKFILE = hf.MUTE_CHKFILE, True  # no temporary checkpoint file is created and removed
+    try:
+        mf = cls(mol)
+    finally:
+        hf.MUTE_CHKFILE = muted
     mf.chkfile = None
     mf.verbose = 0
     mf.conv_tol = CONV_TOL
+    mf.conv_check = False  # PySCF's extra cycle after convergence: the gradient criterion already holds
     mf.max_cycle = 80
     if mol.incore_anyway or mf._is_mem_enough():
         mf._eri = INTEGRALS.get(mol)
+        if SMALL_BASIS_JK:
+            jk.attach(mf, mf._eri)
     h, s = INTEGRALS.one_electron(mol)
+    x = INTEGRALS.orthogonaliser(mol)
     mf.get_hcore = lambda *a, **k: h
     mf.get_ovlp = lambda *a, **k: s
+    mf.check_linear_dependency = lambda *a, **k: x
     return mf
 
 
