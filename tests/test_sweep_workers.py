@@ -2,6 +2,8 @@
 points of a child in the file store, and no child left behind by a killed run."""
 
 import os
+
+import numpy as np
 import signal
 import time
 
@@ -162,3 +164,23 @@ def test_a_failing_sweep_process_loses_nothing(how, monkeypatch, caplog):
     assert "computing its part here" in caplog.text
     assert [p.energy_hartree for p in one.points] == [p.energy_hartree for p in two.points]
     assert one.computed == two.computed
+
+
+def test_starting_density_extrapolation_is_exact_for_low_order_polynomials():
+    # analytic: Lagrange extrapolation through m points reproduces polynomials of degree < m
+    from lcao.scan.protocol import extrapolated_density
+
+    a, b, c = np.arange(4.0).reshape(2, 2), np.eye(2), np.ones((2, 2))
+
+    def dm(r):
+        return a + b * r + c * r * r
+
+    rs = [1.0, 1.3, 1.5]
+    got = extrapolated_density([(r, dm(r)) for r in rs], 1.8)
+    assert np.max(np.abs(got - dm(1.8))) < 1e-12
+    lin = extrapolated_density([(r, a + b * r) for r in rs[:2]], 1.8)
+    assert np.max(np.abs(lin - (a + b * 1.8))) < 1e-12
+    assert extrapolated_density([(1.0, a)], 2.0) is not None
+    assert np.array_equal(extrapolated_density([(1.0, a)], 2.0), a)
+    # a repeated distance gives no extrapolation, only the last density
+    assert np.array_equal(extrapolated_density([(1.0, a), (1.0, b)], 2.0), b)
