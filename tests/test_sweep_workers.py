@@ -27,7 +27,7 @@ def _curve(species, level, budget, monkeypatch, store=None, multiplicity=None):
 def test_forked_sweeps_give_the_same_curve(species, multiplicity, monkeypatch):
     forks = []
     real = workers.run_groups
-    monkeypatch.setattr(workers, "run_groups", lambda groups, fn: forks.append(len(groups)) or real(groups, fn))
+    monkeypatch.setattr(workers, "run_groups", lambda groups, fn, *a: forks.append(len(groups)) or real(groups, fn, *a))
     one = _curve(species, "HF/STO-3G", 1, monkeypatch, multiplicity=multiplicity)
     assert forks == []
     two = _curve(species, "HF/STO-3G", 2, monkeypatch, multiplicity=multiplicity)
@@ -131,7 +131,7 @@ def test_analysis_from_kept_orbitals_equals_the_rebuilt_one(species, multiplicit
 def test_workers_1_on_the_command_line_computes_in_one_process(tmp_path, monkeypatch):
     from lcao.cli import main
 
-    def no_fork(groups, fn):
+    def no_fork(groups, fn, *a):
         raise AssertionError("forked although --workers 1")
 
     monkeypatch.setattr(workers, "run_groups", no_fork)
@@ -184,3 +184,71 @@ def test_starting_density_extrapolation_is_exact_for_low_order_polynomials():
     assert np.array_equal(extrapolated_density([(1.0, a)], 2.0), a)
     # a repeated distance gives no extrapolation, only the last density
     assert np.array_equal(extrapolated_density([(1.0, a), (1.0, b)], 2.0), b)
+
+
+@pytest.mark.skipif(not workers.fork_possible(2), reason="needs fork and two cores")
+def test_side_work_of_a_finished_child_reaches_the_parent_during_its_group():
+    taken = []
+
+    def fn(group, in_child):
+        if in_child:
+            return sum(group)
+        deadline = time.time() + 10
+        while len(taken) < 3 and time.time() < deadline:  # the parent's own group: waits for side items
+            workers.drain()
+            time.sleep(0.005)
+        return sum(group)
+
+    def side(stopped):
+        for k in range(3):
+            yield k
+        while not stopped():  # more only while the parent still waits
+            time.sleep(0.001)
+        yield "late"
+
+    out = workers.run_groups([[1, 2], [3, 4]], fn, side, taken.append)
+    assert out == [3, 7]
+    assert taken[:3] == [0, 1, 2]  # taken while the parent ran its group
+    assert taken[3:] in ([], ["late"])  # the one made after the stop is read to the end of the pipe or lost
+
+
+@pytest.mark.skipif(not workers.fork_possible(2), reason="needs fork and two cores")
+def test_failing_side_work_costs_nothing_but_itself():
+    def side(stopped):
+        yield 1
+        raise RuntimeError("side work broke")
+
+    taken = []
+    out = workers.run_groups([[1], [2]], lambda g, child: g[0] * 10, side, taken.append)
+    assert out == [10, 20] and taken in ([], [1])
+
+
+def test_integral_side_work_sends_what_the_parent_reaches_last_and_it_equals_pyscf():
+    # the reference is PySCF's own integrals at the same distances
+    from pyscf import gto
+
+    from lcao.levels import parse_level
+    from lcao.scan import scf
+    from lcao.scan.protocol import SweepTask, _Runner
+    from lcao.species import parse_species
+    from lcao.store import MemoryStore
+
+    scf.INTEGRALS.clear()
+    r_all = [1.8, 2.0, 2.2, 2.4, 2.6]
+    runner = _Runner(parse_species("N2"), 1, parse_level("HF/6-31G"), MemoryStore())
+    group = [SweepTask("restricted/from-equilibrium", (1, 2, 3, 4), "RHF")]
+    side, take = runner._integral_side_work(r_all, group)
+    items = list(side(lambda: False))
+    scf.INTEGRALS.clear()
+    distances = [np.frombuffer(key[1]).reshape(2, 3)[1, 2] for key, _, _ in items]
+    assert distances == pytest.approx([2.6, 2.4, 2.2, 2.0])  # the last reached first; 1.8 is not visited
+    for (key, eri, one), r in zip(items, distances):
+        ref = gto.M(atom=f"N 0 0 0; N 0 0 {r}", unit="Bohr", basis="6-31G", verbose=0)
+        assert np.max(np.abs(eri - ref.intor("int2e", aosym="s8"))) < 1e-9
+        assert np.max(np.abs(one[1] - ref.intor("int1e_ovlp"))) < 1e-9
+        take((key, eri, one))
+    mol = scf.build_molecule(("N", "N"), 2.4, parse_level("HF/6-31G"), 0, 0)
+    assert scf.INTEGRALS.has(mol)
+    assert list(side(lambda: True)) == []  # nothing once stopped
+    # nothing to hand over when every distance is already at hand
+    assert runner._integral_side_work(r_all, group) == (None, None)

@@ -13,8 +13,8 @@ import numpy as np
 from ..scan.scf import ao_labels
 from ..scan.scf import overlap as ao_overlap
 from .character import homonuclear_class, homonuclear_name, period, prototypes, valence_slots
-from .populations import atom_slices, mayer_bond_order, mo_composition, mo_overlap_population, mulliken_overlap_population
-from .symmetry import kind_label, symmetry_basis, symmetry_weights
+from .populations import atom_slices, mayer_bond_order, mo_compositions, mo_overlap_populations, mulliken_overlap_population
+from .symmetry import kind_label, symmetry_basis, symmetry_weights_all
 
 #: Per-electron MO overlap population below which an MO counts as nonbonding
 #: by overlap population (electrons).
@@ -190,9 +190,11 @@ def analyse(mf, ncore: int | None = None, fock=None) -> OrbitalAnalysis:
         counters: dict[str, int] = {}
         valence_seen: dict = {}
         order = np.argsort(e, kind="stable")
+        all_weights = symmetry_weights_all(c, s, basis)
+        all_ops = mo_overlap_populations(c, s, sl)
+        all_comps = mo_compositions(c, s, groups)
         for rank, i in enumerate(order):
-            ci = c[:, i]
-            weights = symmetry_weights(ci, s, basis)
+            weights = all_weights[i]
             kind, lam, par, summary = kind_label(weights, homo)
             dominant = None
             if kind is None and summary:
@@ -205,7 +207,7 @@ def analyse(mf, ncore: int | None = None, fock=None) -> OrbitalAnalysis:
                 counters[kind] = counters.get(kind, 0) + 1
                 size = 1 if lam == 0 else 2
                 label = f"{(counters[kind] + size - 1) // size}{kind}"
-            op = mo_overlap_population(ci, s, sl)
+            op = float(all_ops[i])
             op_char = "bonding" if op > NONBONDING_OVERLAP else "antibonding" if op < -NONBONDING_OVERLAP else "nonbonding"
             vname = None
             ckind, clam, cpar = kind, lam, par
@@ -234,7 +236,7 @@ def analyse(mf, ncore: int | None = None, fock=None) -> OrbitalAnalysis:
                     vname = plist[k].name
                 else:
                     formal = "outside the valence pattern"
-            comp = {g: round(v, 3) for g, v in sorted(mo_composition(ci, s, groups).items(), key=lambda kv: -kv[1])}
+            comp = {g: round(v, 3) for g, v in sorted(all_comps[i].items(), key=lambda kv: -kv[1])}
             n_el = float(occ[i])
             if dominant is not None and rank >= ncore and n_el > 0:
                 broken.append(f"{spin} orbital {rank} ({100 * summary[dominant]:.0f} % {dominant})")

@@ -30,9 +30,14 @@ def mulliken_overlap_population(dm_total, s, slices) -> float:
 
 def mo_overlap_population(c, s, slices) -> float:
     """Overlap population of one MO per electron (positive = bonding)."""
+    return float(mo_overlap_populations(np.asarray(c)[:, None], s, slices)[0])
+
+
+def mo_overlap_populations(c, s, slices) -> np.ndarray:
+    """Overlap populations per electron of the MOs in the columns of ``c``."""
     a, b = _blocks(slices)
     c = np.asarray(c)
-    return float(2.0 * c[a] @ s[a, b] @ c[b])
+    return 2.0 * np.sum(c[a] * (s[a, b] @ c[b]), axis=0)
 
 
 def mayer_bond_order(dm_alpha, dm_beta, s, slices) -> float:
@@ -51,10 +56,17 @@ def mo_composition(c, s, groups: dict[str, np.ndarray]) -> dict[str, float]:
     Args:
         c: MO coefficients; s: AO overlap; groups: name -> AO index array.
     """
+    return mo_compositions(np.asarray(c)[:, None], s, groups)[0]
+
+
+def mo_compositions(c, s, groups: dict[str, np.ndarray]) -> list[dict[str, float]]:
+    """:func:`mo_composition` of each MO in the columns of ``c``."""
     c = np.asarray(c)
     gross = c * (s @ c)
-    norm = float(gross.sum())
-    return {name: float(100.0 * gross[idx].sum() / norm) for name, idx in groups.items()}
+    norm = gross.sum(axis=0)
+    names = list(groups)
+    by_group = np.array([gross[groups[g]].sum(axis=0) for g in names]) * (100.0 / norm)
+    return [dict(zip(names, map(float, col))) for col in by_group.T]
 
 
 def atom_slices(mol) -> tuple[tuple[int, int], tuple[int, int]]:

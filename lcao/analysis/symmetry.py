@@ -88,14 +88,16 @@ def _adapted_combinations(mol):
 
 def symmetry_weights(c, s, basis: SymmetryBasis) -> dict:
     """Weight of one MO in each (|lambda|, parity) group; the weights sum to 1."""
-    c = np.asarray(c)
-    out = {}
-    sc = s @ c
-    for key, (u, inv) in basis.groups.items():
-        v = u.T @ sc
-        out[key] = float(v @ inv @ v)
-    total = sum(out.values())
-    return {k: w / total for k, w in out.items()}
+    return symmetry_weights_all(np.asarray(c)[:, None], s, basis)[0]
+
+
+def symmetry_weights_all(c, s, basis: SymmetryBasis) -> list[dict]:
+    """:func:`symmetry_weights` of each MO in the columns of ``c``."""
+    sc = s @ np.asarray(c)
+    keys = list(basis.groups)
+    w = np.array([np.sum(v * (inv @ v), axis=0) for v, inv in ((u.T @ sc, inv) for u, inv in basis.groups.values())])
+    w = w / w.sum(axis=0)
+    return [dict(zip(keys, map(float, col))) for col in w.T]
 
 
 def kind_label(weights: dict, homonuclear: bool) -> tuple[str | None, int | None, str | None, dict]:

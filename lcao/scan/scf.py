@@ -168,10 +168,36 @@ class IntegralCache:
         k = self.key(mol)
         eri = self._eri.get(k)
         if eri is None:
+            from .workers import drain
+
+            drain()  # sets a forked sweep may have sent (lcao.scan.workers.run_groups side work)
+            eri = self._eri.get(k)
+        if eri is None:
             eri = mol.intor("int2e", aosym="s8")
             if eri.nbytes <= self.limit_bytes / 32:
                 self._eri.put(k, eri)
         return eri
+
+    def has(self, mol) -> bool:
+        return self.key(mol) in self._eri._items
+
+    def keeps(self, mol) -> bool:
+        """Whether a two-electron set of ``mol``'s size would be kept."""
+        pairs = mol.nao * (mol.nao + 1) // 2
+        return 8 * pairs * (pairs + 1) // 2 <= self.limit_bytes / 32
+
+    def one_electron_set(self, mol):
+        """(core Hamiltonian, overlap, orthogonaliser) of the geometry."""
+        return self._one_set(mol)
+
+    def add(self, key, eri, one=None) -> None:
+        """Keep integrals computed elsewhere (another process) under ``key`` (see :meth:`key`)."""
+        if self._eri.get(key) is None and eri.nbytes <= self.limit_bytes / 32:
+            self._eri.put(key, eri)
+        if one is not None and self._one.get(key) is None:
+            for a in one:
+                a.flags.writeable = False
+            self._one.put(key, tuple(one))
 
     def one_electron(self, mol):
         """(core Hamiltonian, overlap) of the geometry, read-only arrays."""
@@ -216,15 +242,11 @@ class IntegralCache:
             return 0
         pairs = todo[0].nao * (todo[0].nao + 1) // 2
         nbytes = 8 * pairs * (pairs + 1) // 2
-        if nbytes > self.limit_bytes / 32 or nbytes * len(todo) > self.limit_bytes / 2:
+        if not self.keeps(todo[0]) or nbytes * len(todo) > self.limit_bytes / 2:
             return 0
         got = split_map(lambda mol: (mol.intor("int2e", aosym="s8"), self._one_set(mol)), todo, workers)
         for mol, (eri, one) in zip(todo, got):
-            k = self.key(mol)
-            self._eri.put(k, eri)
-            for a in one:
-                a.flags.writeable = False
-            self._one.put(k, one)
+            self.add(self.key(mol), eri, one)
         return len(todo)
 
     def clear(self) -> None:
