@@ -222,15 +222,25 @@ def _compute(sp, lv, gr, multiplicity, st, analyse_points, refine, progress, wor
         mult = multiplicity
         source = "given"
     scan = run_protocol(sp, mult, lv, gr, st, progress, workers)
-    along = point_summaries(sp, mult, lv, scan, st, workers) if analyse_points else ()
-    refined, r_comp, r_reuse = (), 0, 0
+    analysis = None
+    if analyse_points:
+        jobs = summary_jobs(sp, mult, lv, scan, st)
+        analysis = (lambda job: _summary(sp, mult, lv, scan, job), jobs)
+    refined, r_comp, r_reuse, along = (), 0, 0, None
     if refine:
-        refined, r_comp, r_reuse = _refine(sp, mult, lv, scan, st, progress, workers)
-    return scan, along, refined, trials, mult, source, (p_comp, p_reuse, r_comp, r_reuse)
+        # the analysis along the curve runs beside the refinement, in the same processes
+        refined, r_comp, r_reuse, along = _refine(sp, mult, lv, scan, st, progress, workers, analysis)
+    if analysis is not None and along is None:
+        from .scan.workers import split_map
+
+        along = split_map(analysis[0], analysis[1], workers)
+    return scan, tuple(along or ()), refined, trials, mult, source, (p_comp, p_reuse, r_comp, r_reuse)
 
 
-def _refine(sp, mult, lv, scan, st, progress, workers=1):
-    """Refinement points about the coarse minimum of the well (empty when there is none inside the grid)."""
+def _refine(sp, mult, lv, scan, st, progress, workers=1, beside=None):
+    """Refinement points about the coarse minimum of the well (empty when there is none inside the
+    grid), with the ``beside`` jobs (see :func:`lcao.scan.protocol.refine_minimum`); the jobs'
+    results are None when no refinement ran."""
     from .errors import FitError
     from .fit import well_points
     from .fit.local import local_fit
@@ -238,12 +248,12 @@ def _refine(sp, mult, lv, scan, st, progress, workers=1):
 
     well, branch = well_points(scan)
     if len(well) < 5:
-        return (), 0, 0
+        return (), 0, 0, None
     try:
         lf = local_fit([p.r_bohr for p in well], [p.energy_hartree for p in well])
     except FitError:
-        return (), 0, 0
-    return refine_minimum(sp, mult, lv, scan, st, branch, lf.re, progress, workers)
+        return (), 0, 0, None
+    return refine_minimum(sp, mult, lv, scan, st, branch, lf.re, progress, workers, beside)
 
 
 def point_reference(scan, point) -> str:
@@ -262,17 +272,23 @@ def stored_density(store, species, multiplicity, level, point):
     return got.dm
 
 
+def summary_jobs(species, multiplicity, level, scan, store) -> list:
+    """Per curve point, what :func:`_summary` needs: (point, density, kept orbitals), or None for a
+    flagged point."""
+    from .scan.scf import ORBITALS
+    from .store import point_key
+
+    return [(p, stored_density(store, species, multiplicity, level, p),
+             ORBITALS.get(point_key(species, multiplicity, level, p.sweep, p.r_bohr))) if p.trusted else None
+            for p in scan.points]
+
+
 def point_summaries(species, multiplicity, level, scan, store, workers: int = 1) -> tuple:
     """Bond orders and frontier orbitals of every trusted point (None for flagged ones), the
     points split over ``workers`` processes where a fork is possible (:mod:`lcao.scan.workers`)."""
     from .scan.workers import split_map
 
-    from .scan.scf import ORBITALS
-    from .store import point_key
-
-    jobs = [(p, stored_density(store, species, multiplicity, level, p),
-             ORBITALS.get(point_key(species, multiplicity, level, p.sweep, p.r_bohr))) if p.trusted else None
-            for p in scan.points]
+    jobs = summary_jobs(species, multiplicity, level, scan, store)
     return tuple(split_map(lambda job: _summary(species, multiplicity, level, scan, job), jobs, workers))
 
 

@@ -42,6 +42,14 @@ def test_forked_sweeps_give_the_same_curve(species, multiplicity, monkeypatch):
         assert a == b, name
     assert one.fit.as_dict()["re_angstrom"] == two.fit.as_dict()["re_angstrom"]
     assert one.computed == two.computed  # a seed computed on both sides counts once
+    # the analysis along the curve, run beside the refinement in both processes, in point order
+    assert len(one.along) == len(two.along) == len(one.points)
+    for a, b in zip(one.along, two.along):
+        assert (a is None) == (b is None)
+        if a is not None:
+            assert a["r_angstrom"] == b["r_angstrom"] and a["bond_orders"] == b["bond_orders"]
+    without = lcao.curve(species, "HF/STO-3G", range_grid(0.8, 3.0, 16), multiplicity=multiplicity, refine=False)
+    assert [a and a["bond_orders"] for a in without.along] == [a and a["bond_orders"] for a in two.along]
 
 
 def test_child_points_reach_the_file_store(tmp_path, monkeypatch):

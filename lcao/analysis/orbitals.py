@@ -359,8 +359,9 @@ def analyse_stored(species, multiplicity, level, reference, r_bohr, dm, orbitals
     dm = np.asarray(dm)
     if reference == "RHF" and dm.ndim == 3:
         dm = dm.sum(axis=0)
-    mf = make_scf(mol, reference)
-    if orbitals is not None and np.asarray(orbitals[1]).ndim == (3 if reference == "UHF" else 2):
+    kept = orbitals is not None and np.asarray(orbitals[1]).ndim == (3 if reference == "UHF" else 2)
+    mf = make_scf(mol, reference, two_electron=not kept)  # kept orbitals need no two-electron integrals
+    if kept:
         mf.mo_energy, mf.mo_coeff, mf.mo_occ = orbitals
         fock = _fock_from_orbitals(mf.get_ovlp(), orbitals)
     else:

@@ -213,6 +213,8 @@ class _Runner:
             self.reused += reused
             if AtomsTask.KEY in got:
                 out[AtomsTask.KEY] = got.pop(AtomsTask.KEY)
+            if JobsTask.KEY in got:
+                out.setdefault(JobsTask.KEY, {}).update(got.pop(JobsTask.KEY))
             for name, pts in got.items():
                 mine = out.setdefault(name, {})
                 for i, pt in sorted(pts.items()):
@@ -275,6 +277,9 @@ class _Runner:
                 cache = AtomCache(self.level, runner.store)
                 out[AtomsTask.KEY] = [cache.get(*k) for k in t.states]
                 continue
+            if isinstance(t, JobsTask):
+                out.setdefault(JobsTask.KEY, {})[t.first] = [t.fn(job) for job in t.jobs]
+                continue
             got = out.setdefault(t.name, {})
             runner.chain(t.name, r_all, t.indices, t.reference, t.dm0, got, t.check_uhf, t.seed)
         if in_child:
@@ -287,6 +292,8 @@ def _task_size(task) -> float:
     """Rough cost in sweep points: an atom state from scratch costs about three."""
     if isinstance(task, AtomsTask):
         return 3.0 * len(task.states)
+    if isinstance(task, JobsTask):
+        return task.weight * len(task.jobs)
     return len(task.indices) + (task.seed is not None)
 
 
@@ -296,6 +303,19 @@ class AtomsTask:
 
     KEY = "__atoms__"
     states: tuple
+
+
+@dataclass(frozen=True)
+class JobsTask:
+    """Independent jobs run beside the sweeps of a stage, e.g. the orbital analysis along the curve
+    beside the refinement; ``fn(job)`` per job, results in ``out[JobsTask.KEY][first]``."""
+
+    KEY = "__jobs__"
+    fn: object
+    jobs: tuple
+    first: int = 0
+    #: cost of one job in sweep points
+    weight: float = 0.25
 
 
 @dataclass(frozen=True)
@@ -593,23 +613,45 @@ REFINE_STEP_ANGSTROM = 0.01
 REFINE_HALF = 4
 
 
+def split_jobs(fn, jobs, parts: int) -> list:
+    """``jobs`` as up to ``parts`` contiguous :class:`JobsTask` chunks (for :meth:`_Runner.sweeps`)."""
+    jobs = tuple(jobs)
+    if not jobs:
+        return []
+    size = -(-len(jobs) // max(1, parts))
+    return [JobsTask(fn, jobs[k:k + size], k) for k in range(0, len(jobs), size)]
+
+
+def job_results(done: dict, n: int) -> list:
+    """The results of the :class:`JobsTask` chunks of a stage, in job order."""
+    out = []
+    for first in sorted(done.get(JobsTask.KEY, {})):
+        out.extend(done[JobsTask.KEY][first])
+    if len(out) != n:  # pragma: no cover - every chunk runs once
+        raise RuntimeError(f"{len(out)} of {n} jobs came back")
+    return out
+
+
 def refine_minimum(species, multiplicity, level, scan: ScanResult, store, well_branch: str, r_guess_bohr: float, progress=None,
-                   workers: int = 1):
+                   workers: int = 1, beside=None):
     """Extra points about a coarse minimum for the local fit.
 
     A chain warm-started from the nearest trusted point of the well branch, outward
     then inward, with the same reference and stability following as the curve;
-    stored under the sweep ``<branch>/refine``.
+    stored under the sweep ``<branch>/refine``. ``beside`` is (fn, jobs): independent jobs run
+    in the same stage, spread over the same processes (the orbital analysis along the curve).
 
     Returns:
-        tuple of CurvePoint, increasing r (untrusted ones flagged).
+        (points, computed, reused, results): points a tuple of CurvePoint, increasing r (untrusted
+        ones flagged), and ``[fn(job) for job in jobs]`` (None without ``beside``); () and None
+        for the points and results when the well branch has no trusted point.
     """
     from ..units import angstrom_to_bohr
 
     pts = scan.branches.get(well_branch) or scan.points
     good = [p for p in pts if p is not None and p.trusted]
     if not good:
-        return ()
+        return (), 0, 0, None
     step = float(angstrom_to_bohr(REFINE_STEP_ANGSTROM))
     r_new = [r_guess_bohr + k * step for k in range(-REFINE_HALF, REFINE_HALF + 1)]
     nearest = min(good, key=lambda p: abs(p.r_bohr - r_guess_bohr))
@@ -621,6 +663,9 @@ def refine_minimum(species, multiplicity, level, scan: ScanResult, store, well_b
     mid = REFINE_HALF
     tasks = [SweepTask(name, tuple(range(mid, len(r_new))), ref, dm0),
              SweepTask(name, tuple(range(mid - 1, -1, -1)), ref, dm0, seed=mid)]
-    got = runner.sweeps(r_new, tasks, workers)[name]
-    out = _flag_outliers(_as_curve_points(got, len(r_new), nearest.branch, name, ref))
-    return tuple(out), runner.computed, runner.reused
+    if beside is not None:
+        tasks += split_jobs(beside[0], beside[1], max(1, workers))
+    done = runner.sweeps(r_new, tasks, workers)
+    out = _flag_outliers(_as_curve_points(done[name], len(r_new), nearest.branch, name, ref))
+    results = job_results(done, len(beside[1])) if beside is not None else None
+    return tuple(out), runner.computed, runner.reused, results

@@ -321,11 +321,12 @@ def kept_basis_files():
         gb.load = original
 
 
-def make_scf(mol, reference: str):
+def make_scf(mol, reference: str, two_electron: bool = True):
     """An SCF object for ``reference`` ('RHF', 'UHF', 'ROHF') with the checkpoint file off.
 
     The one-electron integrals, and the two-electron ones where PySCF would hold them in memory,
-    come from :data:`INTEGRALS`.
+    come from :data:`INTEGRALS` (the latter only with ``two_electron``; otherwise PySCF computes
+    them if the object ever needs them).
     """
     from pyscf import scf
 
@@ -342,7 +343,7 @@ def make_scf(mol, reference: str):
     mf.conv_tol = CONV_TOL
     mf.conv_check = False  # PySCF's extra cycle after convergence: the gradient criterion already holds
     mf.max_cycle = 80
-    if mol.incore_anyway or mf._is_mem_enough():
+    if two_electron and (mol.incore_anyway or mf._is_mem_enough()):
         mf._eri = INTEGRALS.get(mol)
         if SMALL_BASIS_JK:
             jk.attach(mf, mf._eri)

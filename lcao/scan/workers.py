@@ -18,6 +18,7 @@ dies has its part computed again in the parent.
 
 from __future__ import annotations
 
+import gc
 import logging
 import multiprocessing as mp
 import os
@@ -129,12 +130,16 @@ def run_groups(groups, fn, side=None, take=None):
     stop = ctx.Event()
     children = []
     try:
-        for group in groups[1:]:
-            recv, send = ctx.Pipe(duplex=False)
-            proc = ctx.Process(target=_child, args=(fn, group, send, os.getpid(), side, stop), daemon=True)
-            proc.start()
-            send.close()
-            children.append((proc, recv, group, _Feed(recv, take or (lambda item: None))))
+        gc.freeze()  # a collection in a child would touch, and so copy, every page of the parent's objects
+        try:
+            for group in groups[1:]:
+                recv, send = ctx.Pipe(duplex=False)
+                proc = ctx.Process(target=_child, args=(fn, group, send, os.getpid(), side, stop), daemon=True)
+                proc.start()
+                send.close()
+                children.append((proc, recv, group, _Feed(recv, take or (lambda item: None))))
+        finally:
+            gc.unfreeze()
         if side is not None:
             _FEEDS.extend(c[3] for c in children)
         try:
