@@ -156,3 +156,16 @@ def test_spin_contaminated_well_is_reported():
     assert any("spin contamination" in n for n in res.scan.notes)
     clean = lcao.curve("O2", "HF/STO-3G", range_grid(1.0, 2.0, 8), fit=False, analyse_points=False)
     assert not any("spin contamination" in n for n in clean.scan.notes)
+
+
+def test_both_unrestricted_sweeps_of_co_meet_one_solution():
+    # state following (common practice): the sweep out from the RHF -> UHF instability and the sweep
+    # in from the separated atoms should reach the same UHF solution where both are converged. A
+    # start extrapolated through CO's difficult region near 2 A once sent the first onto a higher
+    # solution at three distances and then onto another state 6.6 mEh lower beyond 2.2 A.
+    res = lcao.curve("CO", "HF/STO-3G", range_grid(0.8, 3.0, 40), multiplicity=1)
+    out = res.scan.sweeps["unrestricted/from-instability"]
+    inw = res.scan.sweeps["unrestricted/from-atoms"]
+    gaps = [abs(a.energy_hartree - b.energy_hartree) for a, b in zip(out, inw) if a and b and a.converged and b.converged]
+    assert len(gaps) > 25 and max(gaps) < 1e-4  # the threshold of the "sweeps disagree" note
+    assert not any("disagree" in n for n in res.scan.notes)
