@@ -100,7 +100,16 @@ def test_scf_objects_use_matrix_product_jk_only_for_small_basis_sets():
     small = make_scf(build_molecule(("N", "N"), 2.1, parse_level("HF/6-31G"), 0, 0), "UHF")
     large = make_scf(build_molecule(("N", "N"), 2.1, parse_level("HF/cc-pVDZ"), 0, 0), "UHF")
     assert small.mol.nao <= jk.MAX_NAO < large.mol.nao
-    assert "get_jk" in vars(small) and "get_jk" not in vars(large)
+    from pyscf import scf as pyscf_scf
+
+    assert type(small) is not pyscf_scf.uhf.UHF and isinstance(small, pyscf_scf.uhf.UHF)
+    assert type(small).__name__ == "UHF" and type(large) is pyscf_scf.uhf.UHF
+    # a second-order copy keeps the products, and converges to PySCF's own energy
+    mn = small.newton()
+    mn.kernel()
+    assert "_lcao_jk" in vars(mn)
+    ref = pyscf_scf.UHF(gto.M(atom="N 0 0 0; N 0 0 2.1", unit="Bohr", basis="6-31G", verbose=0)).run()
+    assert mn.e_tot == pytest.approx(ref.e_tot, abs=1e-8)
     assert small.chkfile is None and large.chkfile is None
     from pyscf.scf import hf
 

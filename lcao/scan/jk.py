@@ -44,23 +44,36 @@ def contract(jmat, kmat, dm, with_j: bool = True, with_k: bool = True):
     return vj, vk
 
 
-def attach(mf, eri) -> bool:
-    """Give ``mf`` the matrix-product J/K where the basis is small and ``eri`` is at hand; returns
-    whether it did. Complex densities and range-separated requests go to PySCF's own build."""
-    nao = mf.mol.nao
-    if eri is None or nao > MAX_NAO:
+_CLASSES: dict = {}
+
+
+def _with_products(cls):
+    """``cls`` with :meth:`get_jk` by matrix products (same name, a subclass)."""
+    got = _CLASSES.get(cls)
+    if got is None:
+
+        def get_jk(self, mol=None, dm=None, hermi=1, with_j=True, with_k=True, omega=None):
+            eri = getattr(self, "_eri", None)
+            if dm is None:
+                dm = self.make_rdm1()
+            if (eri is None or omega or np.iscomplexobj(dm) or (mol is not None and mol is not self.mol)
+                    or self.mol.nao > MAX_NAO):
+                return cls.get_jk(self, mol, dm, hermi, with_j, with_k, omega)
+            mats = self.__dict__.get("_lcao_jk")
+            if mats is None or mats[0] is not eri:
+                mats = self.__dict__["_lcao_jk"] = (eri, jk_matrices(unpacked(eri, self.mol.nao)))
+            return contract(*mats[1], dm, with_j, with_k)
+
+        got = _CLASSES[cls] = type(cls.__name__, (cls,), {"get_jk": get_jk, "__module__": cls.__module__})
+    return got
+
+
+def attach(mf, eri=None) -> bool:
+    """Give ``mf`` the matrix-product J/K where the basis is small and its integrals are in memory
+    (``mf._eri``); returns whether it did. Its class becomes a subclass of the same name, so copies
+    PySCF makes of it (second-order SCF) keep the products. Complex densities and range-separated
+    requests go to PySCF's own build."""
+    if getattr(mf, "_eri", None) is None or mf.mol.nao > MAX_NAO:
         return False
-    state = {}
-    pyscf_jk = mf.get_jk
-
-    def get_jk(mol=None, dm=None, hermi=1, with_j=True, with_k=True, omega=None):
-        if dm is None:
-            dm = mf.make_rdm1()
-        if omega or np.iscomplexobj(dm) or (mol is not None and mol is not mf.mol):
-            return pyscf_jk(mol, dm, hermi, with_j, with_k, omega)
-        if "m" not in state:
-            state["m"] = jk_matrices(unpacked(eri, nao))
-        return contract(*state["m"], dm, with_j, with_k)
-
-    mf.get_jk = get_jk
+    mf.__class__ = _with_products(type(mf))
     return True
