@@ -28,6 +28,16 @@ def unpacked(eri, nao: int) -> np.ndarray:
     return ao2mo.restore(1, eri, nao)
 
 
+def unpacked_of(mf) -> np.ndarray:
+    """:func:`unpacked` integrals of ``mf._eri``, kept on the object (the J/K products and the
+    orbital Hessians of :mod:`lcao.scan.stability` share them)."""
+    eri = mf._eri
+    got = mf.__dict__.get("_lcao_e4")
+    if got is None or got[0] is not eri:
+        got = mf.__dict__["_lcao_e4"] = (eri, unpacked(eri, mf.mol.nao))
+    return got[1]
+
+
 def jk_matrices(e4: np.ndarray):
     """(Coulomb, exchange) contraction matrices, each (n^2, n^2), from unpacked integrals."""
     n = e4.shape[0]
@@ -61,7 +71,7 @@ def _with_products(cls):
                 return cls.get_jk(self, mol, dm, hermi, with_j, with_k, omega)
             mats = self.__dict__.get("_lcao_jk")
             if mats is None or mats[0] is not eri:
-                mats = self.__dict__["_lcao_jk"] = (eri, jk_matrices(unpacked(eri, self.mol.nao)))
+                mats = self.__dict__["_lcao_jk"] = (eri, jk_matrices(unpacked_of(self)))
             return contract(*mats[1], dm, with_j, with_k)
 
         got = _CLASSES[cls] = type(cls.__name__, (cls,), {"get_jk": get_jk, "__module__": cls.__module__})

@@ -34,6 +34,8 @@ UNSTABLE_BELOW = -1e-5
 
 
 def _unpack(eri, n):
+    if np.ndim(eri) == 4:
+        return eri
     from pyscf import ao2mo
 
     return ao2mo.restore(1, eri, n)
@@ -88,7 +90,7 @@ def rhf_hessians(mo_coeff, mo_occ, fock_ao, eri):
     Args:
         mo_coeff: (nao, nmo) orbitals; mo_occ: occupations (2 or 0).
         fock_ao: the Fock matrix of the solution's density, AO basis.
-        eri: two-electron integrals, 8-fold packed.
+        eri: two-electron integrals, 8-fold packed, or already unpacked (nao, nao, nao, nao).
     """
     co, cv, d = _spin_set(mo_coeff, mo_occ, fock_ao)
     aibj, abij = _blocks(_unpack(eri, co.shape[0]), co, cv)
@@ -155,6 +157,13 @@ def dense_possible(mf) -> bool:
     return 0 < n <= DENSE_LIMIT
 
 
+def _integrals(mf):
+    """The unpacked integrals kept on ``mf`` by :mod:`lcao.scan.jk` where it has them, else the packed ones."""
+    from .jk import MAX_NAO, unpacked_of
+
+    return unpacked_of(mf) if mf.mol.nao <= MAX_NAO else mf._eri
+
+
 def _rhf_pair(mf):
     """(singlet, triplet) Hessians of an RHF solution, built once per solution."""
     got = getattr(mf, "_lcao_hessians", None)
@@ -162,7 +171,7 @@ def _rhf_pair(mf):
         return got[1]
     dm = mf.make_rdm1()
     fock = mf.get_hcore() + mf.get_veff(mf.mol, dm)
-    pair = rhf_hessians(mf.mo_coeff, mf.mo_occ, fock, mf._eri)
+    pair = rhf_hessians(mf.mo_coeff, mf.mo_occ, fock, _integrals(mf))
     mf._lcao_hessians = (mf.mo_coeff, pair)
     return pair
 
@@ -174,7 +183,7 @@ def internal(mf, reference: str):
         return lowest_mode(_rhf_pair(mf)[0])
     dm = mf.make_rdm1()
     fock = mf.get_hcore() + mf.get_veff(mf.mol, dm)
-    return lowest_mode(uhf_hessian(mf.mo_coeff, mf.mo_occ, fock, mf._eri))
+    return lowest_mode(uhf_hessian(mf.mo_coeff, mf.mo_occ, fock, _integrals(mf)))
 
 
 def rhf_to_uhf(mf):
