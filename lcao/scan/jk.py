@@ -78,7 +78,7 @@ def _with_products(cls):
     return got
 
 
-def attach(mf, eri=None) -> bool:
+def attach(mf) -> bool:
     """Give ``mf`` the matrix-product J/K where the basis is small and its integrals are in memory
     (``mf._eri``); returns whether it did. Its class becomes a subclass of the same name, so copies
     PySCF makes of it (second-order SCF) keep the products. Complex densities and range-separated

@@ -346,7 +346,7 @@ def make_scf(mol, reference: str, two_electron: bool = True):
     if two_electron and (mol.incore_anyway or mf._is_mem_enough()):
         mf._eri = INTEGRALS.get(mol)
         if SMALL_BASIS_JK:
-            jk.attach(mf, mf._eri)
+            jk.attach(mf)
     h, s = INTEGRALS.one_electron(mol)
     x = INTEGRALS.orthogonaliser(mol)
     mf.get_hcore = lambda *a, **k: h
