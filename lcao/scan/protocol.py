@@ -208,8 +208,7 @@ class _Runner:
         if len(groups) == 1:
             self._run_group(groups[0], False, r_all, out)
             return out
-        side, take = self._integral_side_work(r_all, groups[0])
-        results = run_groups(groups, lambda g, child: self._run_group(g, child, r_all, {} if child else out), side, take)
+        results = run_groups(groups, lambda g, child: self._run_group(g, child, r_all, {} if child else out))
         for got, computed, reused, fresh in results[1:]:
             self.computed += computed
             self.reused += reused
@@ -232,39 +231,6 @@ class _Runner:
                     mine[i] = pt
                     self._tick(name, pt.r_bohr)
         return out
-
-    def _integral_side_work(self, r_all, group):
-        """Side work for forked sweeps (:func:`lcao.scan.workers.run_groups`): a child that has finished
-        its sweeps computes the integrals of the distances this process's sweeps will reach last.
-
-        The restricted sweep outward from equilibrium is the longest chain of a closed-shell curve,
-        while the child beside it has only the inward half and the atoms; the integrals are 40 % of a
-        6-31G point. Returns (side, take), or (None, None) when there is nothing to hand over.
-        """
-        mols = []
-        seen = set()
-        for t in group:
-            if not isinstance(t, SweepTask):
-                continue
-            for i in ([t.seed] if t.seed is not None else []) + list(t.indices):
-                r = r_all[i]
-                if r in seen or self.store.get_point(self.species, self.multiplicity, self.level, t.name, r) is not None:
-                    continue
-                seen.add(r)
-                mol = build_molecule(self.species.atoms, r, self.level, self.species.charge, self.spin)
-                if not INTEGRALS.has(mol):
-                    mols.append(mol)
-        if not mols or not INTEGRALS.keeps(mols[0]):
-            return None, None
-        mols.reverse()  # the last reached first
-
-        def side(stopped):
-            for mol in mols:
-                if stopped():
-                    return
-                yield INTEGRALS.key(mol), INTEGRALS.get(mol), INTEGRALS.one_electron_set(mol)
-
-        return side, lambda item: INTEGRALS.add(*item)
 
     def _run_group(self, group, in_child: bool, r_all, out: dict):
         runner = self

@@ -168,27 +168,15 @@ class IntegralCache:
         k = self.key(mol)
         eri = self._eri.get(k)
         if eri is None:
-            from .workers import drain
-
-            drain()  # sets a forked sweep may have sent (lcao.scan.workers.run_groups side work)
-            eri = self._eri.get(k)
-        if eri is None:
             eri = mol.intor("int2e", aosym="s8")
             if eri.nbytes <= self.limit_bytes / 32:
                 self._eri.put(k, eri)
         return eri
 
-    def has(self, mol) -> bool:
-        return self.key(mol) in self._eri._items
-
     def keeps(self, mol) -> bool:
         """Whether a two-electron set of ``mol``'s size would be kept."""
         pairs = mol.nao * (mol.nao + 1) // 2
         return 8 * pairs * (pairs + 1) // 2 <= self.limit_bytes / 32
-
-    def one_electron_set(self, mol):
-        """(core Hamiltonian, overlap, orthogonaliser) of the geometry."""
-        return self._one_set(mol)
 
     def add(self, key, eri, one=None) -> None:
         """Keep integrals computed elsewhere (another process) under ``key`` (see :meth:`key`)."""

@@ -52,7 +52,7 @@ def die_with_parent(parent: int) -> None:
         os._exit(1)
 
 
-def _child(fn, group, conn, parent, side, stop):
+def _child(fn, group, conn, parent):
     die_with_parent(parent)
     try:
         conn.send(("ok", fn(group, True)))
@@ -61,64 +61,15 @@ def _child(fn, group, conn, parent, side, stop):
             conn.send(("error", f"{type(exc).__name__}: {exc}"))
         except Exception:  # pragma: no cover - parent gone
             pass
-        conn.close()
-        return
-    try:
-        if side is not None:
-            for item in side(stop.is_set):
-                conn.send(("side", item))
-    except Exception as exc:  # noqa: BLE001 - side work is optional: the parent makes what it lacks
-        log.debug("side work stopped: %s", exc)
     finally:
         conn.close()
 
 
-class _Feed:
-    """A child's pipe, read while this process runs its own group: side items go to ``take``, the
-    child's result is kept for :func:`run_groups`."""
-
-    def __init__(self, conn, take):
-        self.conn = conn
-        self.take = take
-        self.result = None
-
-    def drain(self, block: bool = False) -> None:
-        """Read what has arrived (``block``: everything up to the end of the pipe)."""
-        while True:
-            if not block and not self.conn.poll(0):
-                return
-            try:
-                kind, payload = self.conn.recv()
-            except (EOFError, OSError):
-                if self.result is None:
-                    self.result = ("lost", None)
-                return
-            if kind == "side":
-                self.take(payload)
-            elif self.result is None:
-                self.result = (kind, payload)
-
-
-_FEEDS: list = []
-
-
-def drain() -> None:
-    """Take in the side items the children of a running :func:`run_groups` have sent so far (a
-    cheap no-op outside one)."""
-    for feed in _FEEDS:
-        feed.drain()
-
-
-def run_groups(groups, fn, side=None, take=None):
+def run_groups(groups, fn):
     """Run ``fn(group, in_child)`` for every group: the first here, the others in forked children.
 
     A child that fails or dies (other than by an interrupt) loses nothing: its group is run again
     here, as the child would have run it (``in_child`` True), with a warning.
-
-    Side work: a child that has sent its result goes on with ``side(stopped)``, an iterator of items
-    for this process; each is handed to ``take(item)`` here when this process calls :func:`drain`
-    or has finished its own group. ``stopped()`` turns true once this process no longer waits for
-    them. An item lost or never made costs only the time to make it here.
 
     Returns:
         the results in group order.
@@ -127,33 +78,26 @@ def run_groups(groups, fn, side=None, take=None):
         KeyboardInterrupt: the children are stopped when this process is interrupted.
     """
     ctx = mp.get_context("fork")
-    stop = ctx.Event()
     children = []
     try:
         gc.freeze()  # a collection in a child would touch, and so copy, every page of the parent's objects
         try:
             for group in groups[1:]:
                 recv, send = ctx.Pipe(duplex=False)
-                proc = ctx.Process(target=_child, args=(fn, group, send, os.getpid(), side, stop), daemon=True)
+                proc = ctx.Process(target=_child, args=(fn, group, send, os.getpid()), daemon=True)
                 proc.start()
                 send.close()
-                children.append((proc, recv, group, _Feed(recv, take or (lambda item: None))))
+                children.append((proc, recv, group))
         finally:
             gc.unfreeze()
-        if side is not None:
-            _FEEDS.extend(c[3] for c in children)
-        try:
-            results = [fn(groups[0], False)]
-        finally:
-            del _FEEDS[:]
-            stop.set()
-        for proc, recv, group, feed in children:
-            feed.drain(block=True)  # the result, then the side items on their way, to the end of the pipe
-            status, payload = feed.result
+        results = [fn(groups[0], False)]
+        for proc, recv, group in children:
+            try:
+                status, payload = recv.recv()
+            except EOFError:
+                status, payload = "error", f"ended without a result (exit code {proc.exitcode})"
             proc.join()
             if status != "ok":
-                if status == "lost":
-                    payload = f"ended without a result (exit code {proc.exitcode})"
                 if payload.startswith("KeyboardInterrupt"):
                     raise KeyboardInterrupt
                 log.warning("a sweep worker process failed (%s); computing its part here", payload)
@@ -161,8 +105,7 @@ def run_groups(groups, fn, side=None, take=None):
             results.append(payload)
         return results
     finally:
-        stop.set()
-        for proc, recv, _, _ in children:
+        for proc, recv, _ in children:
             if proc.is_alive():
                 proc.terminate()
                 proc.join()
