@@ -173,10 +173,15 @@ class IntegralCache:
                 self._eri.put(k, eri)
         return eri
 
+    @staticmethod
+    def set_bytes(mol) -> int:
+        """Size of ``mol``'s 8-fold packed two-electron set."""
+        pairs = mol.nao * (mol.nao + 1) // 2
+        return 8 * pairs * (pairs + 1) // 2
+
     def keeps(self, mol) -> bool:
         """Whether a two-electron set of ``mol``'s size would be kept."""
-        pairs = mol.nao * (mol.nao + 1) // 2
-        return 8 * pairs * (pairs + 1) // 2 <= self.limit_bytes / 32
+        return self.set_bytes(mol) <= self.limit_bytes / 32
 
     def add(self, key, eri, one=None) -> None:
         """Keep integrals computed elsewhere (another process) under ``key`` (see :meth:`key`)."""
@@ -228,9 +233,7 @@ class IntegralCache:
                 todo.append(mol)
         if len(todo) < 2 or not fork_possible(workers):
             return 0
-        pairs = todo[0].nao * (todo[0].nao + 1) // 2
-        nbytes = 8 * pairs * (pairs + 1) // 2
-        if not self.keeps(todo[0]) or nbytes * len(todo) > self.limit_bytes / 2:
+        if not self.keeps(todo[0]) or self.set_bytes(todo[0]) * len(todo) > self.limit_bytes / 2:
             return 0
         got = split_map(lambda mol: (mol.intor("int2e", aosym="s8"), self._one_set(mol)), todo, workers)
         for mol, (eri, one) in zip(todo, got):
