@@ -200,6 +200,10 @@ class IntegralCache:
         """PySCF's canonical orthogonalisation of the overlap (``check_linear_dependency``), read-only."""
         return self._one_set(mol)[2]
 
+    def one_electron_set(self, mol):
+        """(core Hamiltonian, overlap, orthogonaliser) of the geometry in one lookup."""
+        return self._one_set(mol)
+
     def _one_set(self, mol):
         from pyscf.scf import hf
 
@@ -338,8 +342,7 @@ def make_scf(mol, reference: str, two_electron: bool = True):
         mf._eri = INTEGRALS.get(mol)
         if SMALL_BASIS_JK:
             jk.attach(mf)
-    h, s = INTEGRALS.one_electron(mol)
-    x = INTEGRALS.orthogonaliser(mol)
+    h, s, x = INTEGRALS.one_electron_set(mol)
     mf.get_hcore = lambda *a, **k: h
     mf.get_ovlp = lambda *a, **k: s
     mf.check_linear_dependency = lambda *a, **k: x
