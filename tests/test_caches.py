@@ -95,15 +95,19 @@ def test_matrix_product_jk_equals_pyscf_build(basis):
 
 
 def test_scf_objects_use_matrix_product_jk_only_for_small_basis_sets():
-    from lcao.scan import jk
+    from pyscf import scf as pyscf_scf
+
+    from lcao.scan import jk, lean
 
     small = make_scf(build_molecule(("N", "N"), 2.1, parse_level("HF/6-31G"), 0, 0), "UHF")
     large = make_scf(build_molecule(("N", "N"), 2.1, parse_level("HF/cc-pVDZ"), 0, 0), "UHF")
     assert small.mol.nao <= jk.MAX_NAO < large.mol.nao
-    from pyscf import scf as pyscf_scf
-
-    assert type(small) is not pyscf_scf.uhf.UHF and isinstance(small, pyscf_scf.uhf.UHF)
-    assert type(small).__name__ == "UHF" and type(large) is pyscf_scf.uhf.UHF
+    for mf in (small, large):  # both lean: same-named subclasses of PySCF's class
+        assert type(mf) is not pyscf_scf.uhf.UHF and isinstance(mf, pyscf_scf.uhf.UHF)
+        assert type(mf).__name__ == "UHF"
+    assert lean.uses_products(small) and not lean.uses_products(large)
+    large.get_jk(dm=large.get_init_guess())
+    assert "_lcao_jk" not in vars(large)  # PySCF's own build
     # a second-order copy keeps the products, and converges to PySCF's own energy
     mn = small.newton()
     mn.kernel()
@@ -114,6 +118,80 @@ def test_scf_objects_use_matrix_product_jk_only_for_small_basis_sets():
     from pyscf.scf import hf
 
     assert hf.MUTE_CHKFILE is False  # restored after construction
+
+
+def _plain_scf(mol, reference):
+    """PySCF's own class with make_scf's settings and the same integrals: the reference below."""
+    from pyscf import scf as pyscf_scf
+
+    from lcao.scan import scf
+
+    mf = {"RHF": pyscf_scf.RHF, "UHF": pyscf_scf.UHF, "ROHF": pyscf_scf.ROHF}[reference](mol)
+    mf.chkfile, mf.verbose, mf.conv_tol, mf.conv_check, mf.max_cycle = None, 0, scf.CONV_TOL, False, 80
+    mf._eri = INTEGRALS.get(mol)
+    return mf
+
+
+@pytest.mark.parametrize("reference,atoms,spin", [("RHF", ("N", "N"), 0), ("UHF", ("N", "O"), 1),
+                                                  ("ROHF", ("N", "O"), 1), ("UHF", ("O", "O"), 2)])
+def test_lean_scf_converges_as_pyscf_classes_do(reference, atoms, spin):
+    # the reference is PySCF's own class (pyscf.scf.RHF/UHF/ROHF) from the same start: the same
+    # energy and number of cycles; the DIIS error vector differs from PySCF's only in the last bits
+    from pyscf.scf import diis, hf
+
+    from lcao.scan import lean
+
+    mol = build_molecule(atoms, 2.4, parse_level("HF/6-31G"), 0, spin)
+    mine, plain = make_scf(mol, reference), _plain_scf(mol, reference)
+    assert type(mine).DIIS is not type(plain).DIIS
+    dm0 = plain.get_init_guess()
+    mine.kernel(dm0=dm0)
+    plain.kernel(dm0=dm0)
+    assert mine.converged and plain.converged and mine.cycles == plain.cycles
+    assert mine.e_tot == pytest.approx(plain.e_tot, abs=1e-10)
+    s, x = plain.get_ovlp(), hf.check_linear_dependency(plain.get_ovlp())
+    dm, f = plain.make_rdm1(), plain.get_fock()
+    if reference != "ROHF":  # ROHF's effective Fock matrix goes to PySCF's own error vector
+        ref = diis.get_err_vec_orth(s, dm, f, x)
+        assert np.max(np.abs(lean.commutator_error(s, dm, f, x) - ref)) < 1e-12
+    else:
+        assert lean.commutator_error(s, dm, f, x) is None
+
+
+def test_lean_eigensolver_gives_pyscf_orbitals():
+    # the reference is PySCF's SCF._eigh on the same Fock matrix and orthogonaliser (scipy.linalg.eigh,
+    # whose LAPACK routine and workspace the lean one calls directly), including the degenerate pi pairs
+    from pyscf.scf import hf
+
+    mol = build_molecule(("N", "N"), 2.1, parse_level("HF/6-31G"), 0, 0)
+    mine, plain = make_scf(mol, "RHF"), _plain_scf(mol, "RHF")
+    s = plain.get_ovlp()
+    x = hf.check_linear_dependency(s)
+    f = plain.get_fock(dm=plain.get_init_guess())
+    e, c = mine._eigh(f, s, x=x)
+    e_ref, c_ref = hf.SCF._eigh(plain, f, s, x=x)
+    assert np.max(np.abs(e - e_ref)) < 1e-12 and np.max(np.abs(c - c_ref)) < 1e-12
+
+
+def test_curve_on_lean_scf_equals_curve_on_pyscf_classes(monkeypatch):
+    # the reference is the same protocol on PySCF's own SCF classes (LEAN_SCF off): restricted and
+    # unrestricted sweeps, stability checks and refinement land on the same solutions
+    import lcao
+    from lcao.pipeline import clear_caches
+    from lcao.scan import scf
+
+    def run():
+        clear_caches()
+        res = lcao.curve("N2", "HF/6-31G", points=16, analyse_points=False)
+        return ([p.energy_hartree for p in res.points + res.refined], [p.branch for p in res.points],
+                [p.cycles for p in res.points])
+
+    lean_e, lean_b, lean_c = run()
+    monkeypatch.setattr(scf, "LEAN_SCF", False)
+    plain_e, plain_b, plain_c = run()
+    clear_caches()
+    assert lean_b == plain_b and lean_c == plain_c
+    assert np.max(np.abs(np.array(lean_e) - np.array(plain_e))) < 1e-9
 
 
 def test_orthogonaliser_equals_pyscf_canonical_orthogonalisation():

@@ -10,7 +10,8 @@ both are one matrix product for any number of densities (PySCF's convention; rea
 neither needs D to be symmetric). Measured (N2 UHF, two densities, PySCF 2.14, one thread, ms):
 STO-3G (10 functions) 0.13 against 0.006 plus 0.03 to unpack; 6-31G (18) 0.28 against 0.04 plus
 0.17; cc-pVDZ (28) 0.83 against 0.57 plus 3.8, so the products are used up to
-:data:`MAX_NAO` functions only. tests/test_caches.py compares them with PySCF's build.
+:data:`MAX_NAO` functions only. tests/test_caches.py compares them with PySCF's build; the SCF
+objects take them through :mod:`lcao.scan.lean`.
 """
 
 from __future__ import annotations
@@ -52,38 +53,3 @@ def contract(jmat, kmat, dm, with_j: bool = True, with_k: bool = True):
     vj = (flat @ jmat.T).reshape(dm.shape) if with_j else None
     vk = (flat @ kmat.T).reshape(dm.shape) if with_k else None
     return vj, vk
-
-
-_CLASSES: dict = {}
-
-
-def _with_products(cls):
-    """``cls`` with :meth:`get_jk` by matrix products (same name, a subclass)."""
-    got = _CLASSES.get(cls)
-    if got is None:
-
-        def get_jk(self, mol=None, dm=None, hermi=1, with_j=True, with_k=True, omega=None):
-            eri = getattr(self, "_eri", None)
-            if dm is None:
-                dm = self.make_rdm1()
-            if (eri is None or omega or np.iscomplexobj(dm) or (mol is not None and mol is not self.mol)
-                    or self.mol.nao > MAX_NAO):
-                return cls.get_jk(self, mol, dm, hermi, with_j, with_k, omega)
-            mats = self.__dict__.get("_lcao_jk")
-            if mats is None or mats[0] is not eri:
-                mats = self.__dict__["_lcao_jk"] = (eri, jk_matrices(unpacked_of(self)))
-            return contract(*mats[1], dm, with_j, with_k)
-
-        got = _CLASSES[cls] = type(cls.__name__, (cls,), {"get_jk": get_jk, "__module__": cls.__module__})
-    return got
-
-
-def attach(mf) -> bool:
-    """Give ``mf`` the matrix-product J/K where the basis is small and its integrals are in memory
-    (``mf._eri``); returns whether it did. Its class becomes a subclass of the same name, so copies
-    PySCF makes of it (second-order SCF) keep the products. Complex densities and range-separated
-    requests go to PySCF's own build."""
-    if getattr(mf, "_eri", None) is None or mf.mol.nao > MAX_NAO:
-        return False
-    mf.__class__ = _with_products(type(mf))
-    return True

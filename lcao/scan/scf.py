@@ -22,12 +22,14 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from . import jk
+from . import lean
 
 log = logging.getLogger(__name__)
 
-#: J/K as matrix products up to :data:`lcao.scan.jk.MAX_NAO` functions (see :mod:`lcao.scan.jk`)
-SMALL_BASIS_JK = True
+#: SCF objects of PySCF's classes with the per-call overhead taken out (:mod:`lcao.scan.lean`: J/K as
+#: matrix products for small bases, direct LAPACK, numpy DIIS products); False runs PySCF's classes
+#: as they are (tests compare the two)
+LEAN_SCF = True
 
 CONV_TOL = 1e-9
 #: An internal instability must lower the energy by this much to be followed.
@@ -136,6 +138,8 @@ def build_molecule(symbols, r_bohr: float, level, charge: int, spin: int):
     tmpl = _TEMPLATES.get(key)
     if tmpl is None:
         tmpl = _build([(symbols[0], (0.0, 0.0, 0.0)), (symbols[1], (0.0, 0.0, float(r_bohr)))], level, charge, spin)
+        # fixed once: PySCF otherwise counts the electrons from the nuclear charges in every SCF cycle
+        tmpl.nelectron = tmpl.nelectron
         _TEMPLATES.put(key, tmpl)
     coords = np.array([[0.0, 0.0, 0.0], [0.0, 0.0, float(r_bohr)]])
     return tmpl.set_geom_(coords, unit="Bohr", inplace=False)
@@ -340,8 +344,8 @@ def make_scf(mol, reference: str, two_electron: bool = True):
     mf.max_cycle = 80
     if two_electron and (mol.incore_anyway or mf._is_mem_enough()):
         mf._eri = INTEGRALS.get(mol)
-        if SMALL_BASIS_JK:
-            jk.attach(mf)
+    if LEAN_SCF:
+        lean.attach(mf)
     h, s, x = INTEGRALS.one_electron_set(mol)
     mf.get_hcore = lambda *a, **k: h
     mf.get_ovlp = lambda *a, **k: s

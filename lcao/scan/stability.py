@@ -166,7 +166,7 @@ def _integrals(mf):
 
 def _rhf_pair(mf):
     """(singlet, triplet) Hessians of an RHF solution, built once per solution."""
-    got = getattr(mf, "_lcao_hessians", None)
+    got = mf.__dict__.get("_lcao_hessians")  # not getattr: PySCF's __getattr__ imports all of PySCF on a miss
     if got is not None and got[0] is mf.mo_coeff:
         return got[1]
     dm = mf.make_rdm1()
