@@ -52,6 +52,27 @@ def test_forked_sweeps_give_the_same_curve(species, multiplicity, monkeypatch):
     assert [a and a["bond_orders"] for a in without.along] == [a and a["bond_orders"] for a in two.along]
 
 
+def test_forked_sweeps_hand_their_integrals_back(monkeypatch):
+    # the inward half of N2's restricted sweep runs in a child; the parent keeps the integral sets
+    # of those distances afterwards, equal to PySCF's (the reference: a fresh gto.M build)
+    from pyscf import gto
+
+    from lcao.levels import parse_level
+    from lcao.pipeline import clear_caches
+    from lcao.scan.scf import INTEGRALS, build_molecule
+
+    clear_caches()
+    res = _curve("N2", "HF/STO-3G", 2, monkeypatch, multiplicity=1)
+    level = parse_level("HF/STO-3G")
+    mols = [build_molecule(("N", "N"), p.r_bohr, level, 0, 0) for p in res.points]
+    kept = INTEGRALS.kept_keys()
+    assert all(INTEGRALS.key(m) in kept for m in mols)
+    first = mols[0]  # computed in the child only: inside the instability, on the inward half
+    ref = gto.M(atom=f"N 0 0 0; N 0 0 {res.points[0].r_bohr}", unit="Bohr", basis="STO-3G", verbose=0)
+    assert np.max(np.abs(INTEGRALS.get(first) - ref.intor("int2e", aosym="s8"))) < 1e-12
+    clear_caches()
+
+
 def test_child_points_reach_the_file_store(tmp_path, monkeypatch):
     path = tmp_path / "s.sqlite"
     with Store(path) as st:

@@ -209,9 +209,11 @@ class _Runner:
             self._run_group(groups[0], False, r_all, out)
             return out
         results = run_groups(groups, lambda g, child: self._run_group(g, child, r_all, {} if child else out))
-        for got, computed, reused, fresh in results[1:]:
+        for got, computed, reused, fresh, integrals in results[1:]:
             self.computed += computed
             self.reused += reused
+            for key, eri, one in integrals:
+                INTEGRALS.add(key, eri, one)
             if AtomsTask.KEY in got:
                 out[AtomsTask.KEY] = got.pop(AtomsTask.KEY)
             if JobsTask.KEY in got:
@@ -240,6 +242,7 @@ class _Runner:
             store = MemoryStore() if isinstance(self.store, MemoryStore) or not hasattr(self.store, "path") \
                 else Store(self.store.path, reuse=self.store.reuse)
             runner = _Runner(self.species, self.multiplicity, self.level, store)
+            inherited = INTEGRALS.kept_keys()
         for t in group:
             if isinstance(t, AtomsTask):
                 cache = AtomCache(self.level, runner.store)
@@ -252,8 +255,16 @@ class _Runner:
             runner.chain(t.name, r_all, t.indices, t.reference, t.dm0, got, t.check_uhf, t.seed)
         if in_child:
             runner.store.close()
-            return out, runner.computed, runner.reused, runner.fresh
-        return out, 0, 0, set()
+            # the integral sets computed here go back too: the next stage's sweeps visit these
+            # distances again (the unrestricted sweeps of a closed-shell curve, inside the
+            # instability, those of the restricted sweep's inward half)
+            sets = INTEGRALS.export(INTEGRALS.kept_keys() - inherited, HANDBACK_BYTES)
+            return out, runner.computed, runner.reused, runner.fresh, sets
+        return out, 0, 0, set(), []
+
+
+#: two-electron integrals a forked sweep sends back at most (12 sets of N2 in 6-31G are 1.4 MB)
+HANDBACK_BYTES = 32 * 2**20
 
 
 def _task_size(task) -> float:

@@ -196,6 +196,22 @@ class IntegralCache:
                 a.flags.writeable = False
             self._one.put(key, tuple(one))
 
+    def kept_keys(self) -> set:
+        """Keys of the geometries whose two-electron integrals are kept now."""
+        return set(self._eri._items)
+
+    def export(self, keys, limit_bytes: int) -> list:
+        """``[(key, two-electron set, one-electron set)]`` of the kept geometries among ``keys``, up
+        to ``limit_bytes`` of two-electron integrals in all (for :meth:`add` in another process)."""
+        out, total = [], 0
+        for k in keys:
+            eri, one = self._eri._items.get(k), self._one._items.get(k)
+            if eri is None or total + eri.nbytes > limit_bytes:
+                continue
+            total += eri.nbytes
+            out.append((k, eri, one))
+        return out
+
     def one_electron(self, mol):
         """(core Hamiltonian, overlap) of the geometry, read-only arrays."""
         return self._one_set(mol)[:2]
