@@ -176,10 +176,22 @@ class _Runner:
                 out[seed] = p
             remember(p)
         for i in indices:
+            _take_integrals()
             p = self.point(sweep, r_all[i], reference, start_for(r_all[i]), check_uhf)
             out[i] = p
             remember(p)
         return out
+
+    def send_integrals(self, r_all, indices, skip: set) -> None:
+        """Side work of a forked child (:class:`IntegralsTask`): the integral sets of ``indices`` in
+        order, each sent to the parent as soon as it is computed, except those in ``skip``."""
+        from .workers import send_side_work
+
+        for i in indices:
+            mol = build_molecule(self.species.atoms, r_all[i], self.level, self.species.charge, self.spin)
+            key = INTEGRALS.key(mol)
+            if key not in skip:
+                send_side_work((key, INTEGRALS.get(mol), INTEGRALS.one_electron_set(mol)))
 
     def prefetch_integrals(self, r_all, sweep_names, workers: int) -> int:
         """Integrals of the distances where one of ``sweep_names`` has no stored point, computed over
@@ -201,10 +213,14 @@ class _Runner:
         from .workers import balance, fork_possible, run_groups
 
         out: dict = {}
+        side = [t for t in tasks if isinstance(t, IntegralsTask)]
+        tasks = [t for t in tasks if not isinstance(t, IntegralsTask)]
         if workers > 1 and len(tasks) > 1 and fork_possible(workers):
             groups = balance(tasks, [_task_size(t) for t in tasks], workers)
         else:
             groups = [list(tasks)]
+        if len(groups) > 1:
+            groups[-1] += side  # side work is for a child, once its own tasks are done
         if len(groups) == 1:
             self._run_group(groups[0], False, r_all, out)
             return out
@@ -251,6 +267,12 @@ class _Runner:
             if isinstance(t, JobsTask):
                 out.setdefault(JobsTask.KEY, {})[t.first] = [t.fn(job) for job in t.jobs]
                 continue
+            if isinstance(t, IntegralsTask):
+                if in_child:
+                    from .workers import after_result
+
+                    after_result(lambda t=t, skip=frozenset(inherited): runner.send_integrals(r_all, t.indices, skip))
+                continue
             got = out.setdefault(t.name, {})
             runner.chain(t.name, r_all, t.indices, t.reference, t.dm0, got, t.check_uhf, t.seed)
         if in_child:
@@ -295,6 +317,24 @@ class JobsTask:
     first: int = 0
     #: cost of one job in sweep points
     weight: float = 0.25
+
+
+@dataclass(frozen=True)
+class IntegralsTask:
+    """Side work for the process running a long sweep: a forked child that is done with its own
+    tasks computes the integral sets of ``indices`` (the far end of that sweep first) and sends
+    each at once; the sweep takes them between its points (:func:`_take_integrals`). Dropped
+    when the tasks run in one process."""
+
+    indices: tuple
+
+
+def _take_integrals() -> None:
+    """Keep the integral sets forked children have sent so far (:class:`IntegralsTask`)."""
+    from .workers import take_side_work
+
+    for key, eri, one in take_side_work():
+        INTEGRALS.add(key, eri, one)
 
 
 @dataclass(frozen=True)
@@ -504,6 +544,10 @@ def run_protocol(species, multiplicity, level, grid: Grid, store, progress=None,
         tasks = from_equilibrium_tasks("restricted", "RHF", check_uhf=True)
         if atoms_beside:
             tasks.append(AtomsTask(tuple(needed_states(species, multiplicity - 1))))
+        # the outward half is the longest chain: the child with the short inward half computes its
+        # integrals from the far end once done (an open-shell curve has them all beforehand)
+        if INTEGRALS.keeps(build_molecule(species.atoms, r_all[-1], level, species.charge, runner.spin)):
+            tasks.append(IntegralsTask(tuple(range(n - 1, i0, -1))))
         done = runner.sweeps(r_all, tasks, workers)
         for state in done.pop(AtomsTask.KEY, ()):
             cache.add(state)
