@@ -73,6 +73,42 @@ def test_forked_sweeps_hand_their_integrals_back(monkeypatch):
     clear_caches()
 
 
+def test_side_work_reaches_the_parent_while_it_runs_its_own_group():
+    # a child done with its group sends side work (here forever); the parent takes it between its
+    # own steps, gets the child's result at the join, and the child is stopped afterwards
+    def fn(group, in_child):
+        if in_child:
+            def forever():
+                k = 0
+                while True:
+                    workers.send_side_work(("payload", k, np.full(20000, k)))  # 160 KB: over a default pipe
+                    k += 1
+            workers.after_result(forever)
+            return ("child result", group)
+        got = []
+        deadline = time.time() + 60
+        while len(got) < 5 and time.time() < deadline:
+            got += workers.take_side_work()
+            time.sleep(0.01)
+        return got
+
+    mine, theirs = workers.run_groups([["here"], ["there"]], fn)
+    assert theirs == ("child result", ["there"])
+    assert [x[1] for x in mine[:5]] == [0, 1, 2, 3, 4] and all((x[2] == x[1]).all() for x in mine)
+    assert workers.take_side_work() == []  # nothing is polled outside run_groups
+    deadline = time.time() + 10
+    while workers._UNREAPED and time.time() < deadline:
+        workers._reap()
+        time.sleep(0.05)
+    assert workers._UNREAPED == []  # stopped and collected
+
+
+def test_side_work_is_not_done_outside_a_forked_child():
+    # a failed child's part computed again here must not register side work in this process
+    workers.after_result(lambda: (_ for _ in ()).throw(AssertionError("side work ran here")))
+    assert workers._AFTER == []
+
+
 def test_child_points_reach_the_file_store(tmp_path, monkeypatch):
     path = tmp_path / "s.sqlite"
     with Store(path) as st:
