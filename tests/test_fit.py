@@ -8,7 +8,7 @@ import pytest
 import lcao
 from lcao.errors import FitError
 from lcao.fit.local import dunham_constants, local_fit
-from lcao.fit.morse import fit_morse, morse, morse_levels
+from lcao.fit.morse import fit_morse, morse, morse_jacobian, morse_levels
 from lcao.fit.vibration import solve_levels
 from lcao.masses import resolve_isotopes
 from lcao.scan.grid import range_grid
@@ -24,6 +24,19 @@ def test_morse_recovered_from_exact_data():
     fit = fit_morse(r, morse(r, *true))
     for got, want in zip((fit.e_min, fit.de, fit.a, fit.re), true):
         assert got == pytest.approx(want, rel=1e-6)
+
+
+def test_morse_jacobian_equals_central_differences():
+    # analytic: the derivatives of V(r) = e_min + de (1 - exp(-a (r - re)))^2 against central
+    # differences of the function itself
+    p = np.array([-112.7, 0.35, 1.15, 2.13])
+    r = np.linspace(1.2, 6.0, 25)
+    jac = morse_jacobian(r, *p)
+    for k in range(4):
+        h = np.zeros(4)
+        h[k] = 1e-6 * max(1.0, abs(p[k]))
+        numeric = (morse(r, *(p + h)) - morse(r, *(p - h))) / (2 * h[k])
+        assert np.max(np.abs(jac[:, k] - numeric)) < 1e-7
 
 
 def test_morse_standard_errors_have_the_right_size():

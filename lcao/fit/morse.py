@@ -1,7 +1,8 @@
 """Morse fit: V(r) = E_min + D_e (1 - exp(-a (r - r_e)))^2 (Morse, Phys. Rev. 34 (1929) 57).
 
-Fitted with ``scipy.optimize.least_squares`` from starting guesses taken from
-a rough quadratic fit; standard errors from the covariance (J^T J)^-1 s^2.
+Fitted with ``scipy.optimize.least_squares`` (analytic Jacobian) from starting
+guesses taken from a rough quadratic fit; standard errors from the covariance
+(J^T J)^-1 s^2 with the exact Jacobian at the solution.
 Atomic units throughout.
 """
 
@@ -18,6 +19,18 @@ from ..errors import FitError
 def morse(r, e_min, de, a, re):
     """The Morse potential (same units as the arguments)."""
     return e_min + de * (1.0 - np.exp(-a * (np.asarray(r) - re))) ** 2
+
+
+def morse_jacobian(r, e_min, de, a, re) -> np.ndarray:
+    """Derivatives of :func:`morse` by (e_min, de, a, re) at each distance, shape (len(r), 4).
+
+    With u = exp(-a (r - re)): dV/de_min = 1, dV/dde = (1 - u)^2, dV/da = 2 de (1 - u) u (r - re),
+    dV/dre = -2 de (1 - u) u a.
+    """
+    r = np.asarray(r, float)
+    u = np.exp(-a * (r - re))
+    w = 2.0 * de * (1.0 - u) * u
+    return np.column_stack([np.ones_like(r), (1.0 - u) ** 2, w * (r - re), -w * a])
 
 
 def morse_levels(we: float, wexe: float, vmax: int) -> np.ndarray:
@@ -88,13 +101,14 @@ def fit_morse(r, e, window_reason: str = "given") -> MorseFit:
     lower = [-np.inf, 1e-8, 1e-4, r.min() * 0.5]
     upper = [np.inf, np.inf, 50.0, r.max() * 2.0]
     x0 = np.clip(x0, np.array(lower) + 1e-12, np.array(upper) - 1e-12)
-    sol = least_squares(resid, x0, bounds=(lower, upper), x_scale="jac", xtol=1e-15, ftol=1e-15, gtol=1e-15, max_nfev=20000)
+    sol = least_squares(resid, x0, jac=lambda p: morse_jacobian(r, *p) / scale, bounds=(lower, upper), x_scale="jac",
+                        xtol=1e-15, ftol=1e-15, gtol=1e-15, max_nfev=20000)
     if not sol.success:
         raise FitError(f"the Morse fit did not converge: {sol.message}")
     res = (morse(r, *sol.x) - e)
     dof = max(n - 4, 1)
     s2 = float(np.sum(res**2) / dof)
-    J = sol.jac * scale  # d(model)/dp in hartree
+    J = morse_jacobian(r, *sol.x)  # d(model)/dp in hartree, exact
     jtj = J.T @ J
     try:
         cond = np.linalg.cond(jtj)
