@@ -73,6 +73,18 @@ class CurvePoint:
         }
 
 
+def _interpolated_at(x, y) -> float:
+    """Value at 0 of the polynomial through the points (x, y) (Lagrange form; degree len(x) - 1)."""
+    total = 0.0
+    for j in range(len(x)):
+        w = 1.0
+        for m in range(len(x)):
+            if m != j:
+                w *= x[m] / (x[m] - x[j])
+        total += w * y[j]
+    return total
+
+
 def outlier_reasons(r, energy, trusted, tol: float = OUTLIER_TOL_HARTREE) -> list[str | None]:
     """Flag points that lie well above the smooth curve through their neighbours.
 
@@ -103,8 +115,7 @@ def outlier_reasons(r, energy, trusted, tol: float = OUTLIER_TOL_HARTREE) -> lis
         for j in range(1, len(idx) - 1):
             i = idx[j]
             nb = np.concatenate([idx[max(0, j - 2) : j], idx[j + 1 : j + 3]])
-            x = r[nb] - r[i]
-            pred = np.polyval(np.polyfit(x, e[nb], min(len(nb) - 1, 3)), 0.0)
+            pred = _interpolated_at(r[nb] - r[i], e[nb])
             lo, hi = idx[j - 1], idx[j + 1]
             w = (r[i] - r[lo]) / (r[hi] - r[lo])
             chord = (1 - w) * e[lo] + w * e[hi]
