@@ -70,7 +70,7 @@ def orthogonal_eigh(h, x):
 
 
 def commutator_error(s, d, f, x):
-    """PySCF's DIIS error vector x^T (S D F - F D S) x, spin sets stacked, for a restricted
+    """PySCF's DIIS error vector x^T (F D S - S D F) x, spin sets stacked, for a restricted
     (``d``, ``f`` (n, n)) or unrestricted (``d``, ``f`` (2, n, n)) density and Fock matrix; None
     for other shapes (ROHF's effective Fock matrix, symmetry-blocked orthogonalisers)."""
     if x is None or hasattr(x, "orbsym") or np.ndim(s) != 2 or np.iscomplexobj(f) or np.iscomplexobj(x):
