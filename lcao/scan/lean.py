@@ -168,7 +168,7 @@ def lean_class(cls):
             if dm is None:
                 dm = self.make_rdm1()
             if (eri is None or omega or np.iscomplexobj(dm) or (mol is not None and mol is not self.mol)
-                    or self.mol.nao > jk.MAX_NAO):
+                    or np.shape(dm)[-1] > jk.MAX_NAO):  # not mol.nao: PySCF counts it from the shells
                 return cls.get_jk(self, mol, dm, hermi, with_j, with_k, omega)
             mats = self.__dict__.get("_lcao_jk")
             if mats is None or mats[0] is not eri:
