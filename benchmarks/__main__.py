@@ -10,7 +10,7 @@ Cases (each measured against its baseline in the same run):
            loops over the same species and distances (each member's default grid) computing energies
            only, against ``lcao series``;
   slow     (with --slow) a 40-point N2 curve at HF/cc-pVTZ.
-Curve, series and shell cases take the best of ``--repeat`` runs of each side (run in turn), and
+Curve, series and shell cases take the best of ``--repeat`` runs of each side, the sides run in turn, and
 every tool run starts with the process caches cleared (``lcao.pipeline.clear_caches``). Both sides
 run on one thread per process.
 Peak memory is the largest resident set of the process (or of a child process for the shell case).
@@ -93,13 +93,16 @@ def timed(fn, *a):
     return time.perf_counter() - t0, out
 
 
-def best_of(repeat, fn, *a):
-    """Shortest wall time of ``repeat`` runs (the usual estimate on a machine with noisy neighbours)."""
-    best = None
+def best_in_turn(repeat, fns, *a):
+    """Shortest wall time of each of ``fns`` over ``repeat`` rounds, the functions run in turn within a
+    round (the usual estimate on a machine with noisy neighbours; in turn, so that a slow spell of the
+    machine falls on both sides rather than on whichever ran then)."""
+    best = [None] * len(fns)
     for _ in range(max(1, repeat)):
-        t, out = timed(fn, *a)
-        best = t if best is None else min(best, t)
-    return best, out
+        for j, fn in enumerate(fns):
+            t, _ = timed(fn, *a)
+            best[j] = t if best[j] is None else min(best[j], t)
+    return best
 
 
 def row(case, base_label, tb, tool_label, tt, points, mem):
@@ -196,8 +199,7 @@ def main(argv=None):
         curves.append(("N2", "HF/cc-pVTZ", 1))
     for species, level, mult in curves:
         k = 1 if "cc-" in level else args.repeat
-        tb, _ = best_of(k, baseline, species, level, mult, r)
-        tt, _ = best_of(k, tool, species, level, mult, r)
+        tb, tt = best_in_turn(k, (baseline, tool), species, level, mult, r)
         rows.append(row(f"curve {species} {level}", "hand loop", tb, "lcao.curve", tt, args.points, peak_mb()))
     with tempfile.TemporaryDirectory() as tmp:
         if "series" in cases:
