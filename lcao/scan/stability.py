@@ -41,10 +41,17 @@ def _unpack(eri, n):
     return ao2mo.restore(1, eri, n)
 
 
-def _left(e4, c1, c2):
-    """(pq|rs) -> (xy|rs) with x = c1 on p, y = c2 on q; shape (x, y, n*n)."""
+def _first(e4, c1):
+    """(pq|rs) -> (xq|rs) with x = c1 on p; shape (x, n, n*n). The costly step (n^4 times the
+    orbitals), shared by the transformations that put the same orbitals on p."""
     n = e4.shape[0]
-    t = (c1.T @ e4.reshape(n, n**3)).reshape(-1, n, n * n)  # (x, q, rs)
+    return (c1.T @ e4.reshape(n, n**3)).reshape(-1, n, n * n)
+
+
+def _left(e4, c1, c2, first=None):
+    """(pq|rs) -> (xy|rs) with x = c1 on p, y = c2 on q; shape (x, y, n*n). ``first`` is
+    ``_first(e4, c1)`` when already at hand."""
+    t = _first(e4, c1) if first is None else first  # (x, q, rs)
     return np.matmul(c2.T, t)  # (x, y, rs), one product per x
 
 
@@ -56,13 +63,15 @@ def _right(left, c3, c4):
     return t.reshape(x, y, c3.shape[1], c4.shape[1])
 
 
-def _blocks(e4, co, cv, left=None):
+def _blocks(e4, co, cv, left=None, first=None):
     """(ai|bj) and (ab|ij) from unpacked AO integrals, occupied indices transformed first (the
     fewer), by plain matrix products: several times faster here than PySCF's general
-    transformation. ``left`` is ``_left(e4, co, cv)`` when already at hand."""
-    left = _left(e4, co, cv) if left is None else left
+    transformation. ``first`` is ``_first(e4, co)`` and ``left`` ``_left(e4, co, cv)`` when
+    already at hand; the occupied orbitals go onto the first index once for both blocks."""
+    first = _first(e4, co) if first is None else first
+    left = _left(e4, co, cv, first) if left is None else left
     aibj = _right(left, co, cv).transpose(1, 0, 3, 2)  # (ia|jb) -> (ai|bj)
-    abij = _right(_left(e4, co, co), cv, cv).transpose(2, 3, 0, 1)  # (ij|ab) -> (ab|ij)
+    abij = _right(_left(e4, co, co, first), cv, cv).transpose(2, 3, 0, 1)  # (ij|ab) -> (ab|ij)
     return aibj, abij
 
 
@@ -112,10 +121,11 @@ def uhf_hessian(mo_coeff, mo_occ, fock_ao, eri):
     for s in (0, 1):
         if sizes[s] == 0:
             continue
-        left = _left(e4, cos[s], cvs[s])
+        first = _first(e4, cos[s])
+        left = _left(e4, cos[s], cvs[s], first)
         if s == 0:
             left_a = left
-        aibj, abij = _blocks(e4, cos[s], cvs[s], left)
+        aibj, abij = _blocks(e4, cos[s], cvs[s], left, first)
         blk = 2.0 * (_exchange_part(ds[s], aibj, abij) + 2.0 * aibj)
         h[off[s]:off[s] + sizes[s], off[s]:off[s] + sizes[s]] = blk.reshape(sizes[s], sizes[s])
     if sizes[0] and sizes[1]:
