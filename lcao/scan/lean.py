@@ -24,7 +24,8 @@ PySCF's second-order copy, which subclasses the object's class, keeps it) with:
   error vector differs from PySCF's in the last bits (another BLAS); converged energies agree to
   about 1e-11 Eh (tests/test_caches.py compares whole SCFs and a curve with PySCF's own classes);
 * ``get_jk``: the matrix products of :mod:`lcao.scan.jk` where the basis has at most
-  :data:`lcao.scan.jk.MAX_NAO` functions and the integrals are in memory (``mf._eri``).
+  :data:`lcao.scan.jk.MAX_NAO` functions and the integrals are in memory (``mf._eri``);
+* ``_finalize``: nothing below PySCF's NOTE verbosity (its UHF computes <S^2> there only to log it).
 
 Complex matrices and every case not listed go to PySCF's own methods unchanged.
 """
@@ -175,8 +176,16 @@ def lean_class(cls):
                 mats = self.__dict__["_lcao_jk"] = (eri, jk.jk_matrices(jk.unpacked_of(self)))
             return jk.contract(*mats[1], dm, with_j, with_k)
 
+        def _finalize(self):
+            from pyscf.lib import logger
+
+            if self.verbose < logger.NOTE:  # PySCF's UHF computes <S^2> here only for its log line
+                return self
+            return cls._finalize(self)
+
         got = _CLASSES[cls] = type(cls.__name__, (cls,), {
-            "_eigh": _eigh, "get_jk": get_jk, "DIIS": lean_diis_class(), "__module__": cls.__module__,
+            "_eigh": _eigh, "get_jk": get_jk, "_finalize": _finalize, "DIIS": lean_diis_class(),
+            "__module__": cls.__module__,
         })
     return got
 

@@ -358,7 +358,8 @@ def make_scf(mol, reference: str, two_electron: bool = True):
     mf.conv_tol = CONV_TOL
     mf.conv_check = False  # PySCF's extra cycle after convergence: the gradient criterion already holds
     mf.max_cycle = 80
-    if two_electron and (mol.incore_anyway or mf._is_mem_enough()):
+    # a set the cache keeps (5 MB at most) fits; PySCF's own check reads /proc/self/statm every time
+    if two_electron and (mol.incore_anyway or INTEGRALS.keeps(mol) or mf._is_mem_enough()):
         mf._eri = INTEGRALS.get(mol)
     if LEAN_SCF:
         lean.attach(mf)
