@@ -39,6 +39,17 @@ def test_morse_jacobian_equals_central_differences():
         assert np.max(np.abs(jac[:, k] - numeric)) < 1e-7
 
 
+def test_morse_fit_stays_inside_its_bounds():
+    # data without a well (flat, with noise): the unconstrained least-squares optimum has a steeper
+    # exponent than the bound of 50 per bohr, so the fit falls back to the bounded method
+    rng = np.random.default_rng(3)
+    r = np.linspace(1.5, 4.0, 12)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        fit = fit_morse(r, -1.0 + rng.normal(0, 1e-6, r.size))
+    assert 1e-4 <= fit.a <= 50.0 and fit.de >= 1e-8 and 0.5 * r.min() <= fit.re <= 2.0 * r.max()
+
+
 def test_morse_standard_errors_have_the_right_size():
     # noise of known size: the spread of the parameters over many noisy fits must
     # match the standard errors the covariance reports (within a factor 1.5)

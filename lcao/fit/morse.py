@@ -1,8 +1,9 @@
 """Morse fit: V(r) = E_min + D_e (1 - exp(-a (r - r_e)))^2 (Morse, Phys. Rev. 34 (1929) 57).
 
-Fitted with ``scipy.optimize.least_squares`` (analytic Jacobian) from starting
-guesses taken from a rough quadratic fit; standard errors from the covariance
-(J^T J)^-1 s^2 with the exact Jacobian at the solution.
+Fitted with ``scipy.optimize.least_squares`` (analytic Jacobian; Levenberg-
+Marquardt, or the bounded trust-region method where that leaves the bounds) from
+starting guesses taken from a rough quadratic fit; standard errors from the
+covariance (J^T J)^-1 s^2 with the exact Jacobian at the solution.
 Atomic units throughout.
 """
 
@@ -101,8 +102,13 @@ def fit_morse(r, e, window_reason: str = "given") -> MorseFit:
     lower = [-np.inf, 1e-8, 1e-4, r.min() * 0.5]
     upper = [np.inf, np.inf, 50.0, r.max() * 2.0]
     x0 = np.clip(x0, np.array(lower) + 1e-12, np.array(upper) - 1e-12)
-    sol = least_squares(resid, x0, jac=lambda p: morse_jacobian(r, *p) / scale, bounds=(lower, upper), x_scale="jac",
-                        xtol=1e-15, ftol=1e-15, gtol=1e-15, max_nfev=20000)
+    jac = lambda p: morse_jacobian(r, *p) / scale  # noqa: E731
+    tols = {"xtol": 1e-15, "ftol": 1e-15, "gtol": 1e-15, "max_nfev": 20000}
+    # Levenberg-Marquardt (MINPACK) first: 1-5 ms against 9-28 ms for the bounded trust-region
+    # method on the same start, with the same optimum; kept only where it ends inside the bounds
+    sol = least_squares(resid, x0, jac=jac, method="lm", x_scale="jac", **tols)
+    if not (sol.success and np.all(sol.x > lower) and np.all(sol.x < upper)):
+        sol = least_squares(resid, x0, jac=jac, bounds=(lower, upper), x_scale="jac", **tols)
     if not sol.success:
         raise FitError(f"the Morse fit did not converge: {sol.message}")
     res = (morse(r, *sol.x) - e)
