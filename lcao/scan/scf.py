@@ -112,6 +112,10 @@ class BoundedCache:
         self._items.clear()
         self.total = 0
 
+    def keys(self) -> list:
+        """The keys held now, least recently used first."""
+        return list(self._items)
+
     def __len__(self) -> int:
         return len(self._items)
 
@@ -198,14 +202,14 @@ class IntegralCache:
 
     def kept_keys(self) -> set:
         """Keys of the geometries whose two-electron integrals are kept now."""
-        return set(self._eri._items)
+        return set(self._eri.keys())
 
     def export(self, keys, limit_bytes: int) -> list:
         """``[(key, two-electron set, one-electron set)]`` of the kept geometries among ``keys``, up
         to ``limit_bytes`` of two-electron integrals in all (for :meth:`add` in another process)."""
         out, total = [], 0
         for k in keys:
-            eri, one = self._eri._items.get(k), self._one._items.get(k)
+            eri, one = self._eri.get(k), self._one.get(k)
             if eri is None or total + eri.nbytes > limit_bytes:
                 continue
             total += eri.nbytes
