@@ -3,31 +3,36 @@
 A warm-started point of a diatomic converges in a handful of cycles on matrices of 10 to 30
 functions, where the fixed cost of a library call outweighs its arithmetic. Measured per call
 (N2, 6-31G, 18 functions; PySCF 2.14, SciPy 1.17, NumPy 2.4, one thread; microseconds):
-
-* ``scipy.linalg.eigh`` of an 18 x 18 matrix 124, of which the LAPACK routine it calls (dsyevr)
-  is 55: the rest is the wrapper's argument checks and batching. PySCF's ``_eigh`` calls it for
-  each spin in every cycle, and its DIIS once more on the small DIIS matrix;
-* ``pyscf.lib.dot`` of two 18 x 18 matrices 30 through ctypes, against 4 for numpy's ``@``.
-  PySCF's commutator DIIS makes four such products per spin and cycle;
-* J and K: see :mod:`lcao.scan.jk`.
-
-A warm UHF point (7 cycles, integrals in memory) went from 10.9-12.2 ms to 9.0-9.2 ms with these
-changes (best of seven runs of 60 calls each, before and after).
+``scipy.linalg.eigh`` of an 18 x 18 matrix 124, of which the LAPACK routine it calls (dsyevr) is
+55: the rest is the wrapper's argument checks and batching. PySCF's ``_eigh`` calls it for each
+spin in every cycle, and its DIIS once more on the small DIIS matrix. J and K: see
+:mod:`lcao.scan.jk`.
 
 :func:`attach` swaps an SCF object's class for a same-named subclass of its own class (so
 PySCF's second-order copy, which subclasses the object's class, keeps it) with:
 
 * ``_eigh``: LAPACK's dsyevr called directly, with the workspace ``scipy.linalg.eigh`` asks for
   and on the matrix PySCF forms, so the orbitals are PySCF's to the last bit;
-* ``DIIS``: :class:`LeanDIIS`, PySCF's commutator DIIS (``pyscf.scf.diis.CDIIS``) with the
-  error vector from numpy products and the small DIIS matrix tested and solved with numpy. The
-  error vector differs from PySCF's in the last bits (another BLAS); converged energies agree to
-  about 1e-11 Eh (tests/test_caches.py compares whole SCFs and a curve with PySCF's own classes);
+* ``DIIS``: :class:`LeanDIIS`, PySCF's commutator DIIS (``pyscf.scf.diis.CDIIS``) whose small
+  linear system is tested for linear dependence with numpy's eigenvalues instead of
+  ``scipy.linalg.eigh`` and then solved with ``numpy.linalg.solve`` as PySCF does. Where an
+  eigenvalue comes near PySCF's dependence threshold (:data:`DEPENDENCE_MARGIN`) the step is
+  PySCF's own: its pseudo-inverse is built on scipy's eigenvectors, and numpy's (another LAPACK
+  routine) differ in the last bits. The error vector stays PySCF's (``pyscf.lib.dot``, its BLAS)
+  for the same reason. Last-bit differences of either kind were enough to move points: numpy's
+  error vector sent sweeps of O2 and NO onto other, sometimes higher, UHF solutions at long range
+  (O2 6-31G beyond 2.7 A by up to 2.8e-4 Eh), and numpy's pseudo-inverse the last point of O2
+  STO-3G at 3.0 A by 7e-6 Eh;
 * ``get_jk``: the matrix products of :mod:`lcao.scan.jk` where the basis has at most
   :data:`lcao.scan.jk.MAX_NAO` functions and the integrals are in memory (``mf._eri``);
 * ``_finalize``: nothing below PySCF's NOTE verbosity (its UHF computes <S^2> there only to log it).
 
-Complex matrices and every case not listed go to PySCF's own methods unchanged.
+Complex matrices and every case not listed go to PySCF's own methods unchanged. Besides J and K
+(whose products differ from PySCF's build in the last bits, about 1e-13 Eh in the energy), the
+class changes no number: with PySCF's eigensolver and DIIS put back, an SCF gives the same
+energy and orbitals to the last bit (tests/test_caches.py), and twelve 40-point curves of N2, NO,
+O2, CO, CN- and BF in STO-3G and 6-31G gave every point of every sweep to the last bit of the code
+before these two methods were added (``python -m benchmarks.numbers``).
 """
 
 from __future__ import annotations
@@ -35,6 +40,11 @@ from __future__ import annotations
 import numpy as np
 
 from . import jk
+
+#: Below this, a DIIS eigenvalue from numpy may fall on either side of PySCF's 1e-14 dependence
+#: test with scipy's eigenvalues (other LAPACK routines, differing by about 1e-16 times the matrix
+#: norm), so :class:`LeanDIIS` hands the step to PySCF.
+DEPENDENCE_MARGIN = 1e-12
 
 _CLASSES: dict = {}
 _LWORK: dict = {}
@@ -70,67 +80,26 @@ def orthogonal_eigh(h, x):
     return w, hf._adjust_phase_(x.dot(v))
 
 
-def commutator_error(s, d, f, x):
-    """PySCF's DIIS error vector x^T (F D S - S D F) x, spin sets stacked, for a restricted
-    (``d``, ``f`` (n, n)) or unrestricted (``d``, ``f`` (2, n, n)) density and Fock matrix; None
-    for other shapes (ROHF's effective Fock matrix, symmetry-blocked orthogonalisers)."""
-    if x is None or hasattr(x, "orbsym") or np.ndim(s) != 2 or np.iscomplexobj(f) or np.iscomplexobj(x):
-        return None
-    f = np.asarray(f)
-    d = np.asarray(d)
-    if f.ndim == 2 and d.ndim == 2:
-        pairs = ((d, f),)
-    elif f.ndim == 3 and d.ndim == 3 and f.shape[0] == 2 and d.shape[0] == 2:
-        pairs = ((d[0], f[0]), (d[1], f[1]))
-    else:
-        return None
-    xs = x.T @ s
-    parts = []
-    for dk, fk in pairs:
-        sdf = xs @ dk @ fk @ x
-        parts.append((sdf.T - sdf).ravel())
-    return parts[0] if len(parts) == 1 else np.hstack(parts)
-
-
 def _lean_diis():
-    from pyscf import lib
     from pyscf.scf import diis
 
     class LeanDIIS(diis.CDIIS):
-        """PySCF's commutator DIIS with numpy products (see the module docstring)."""
-
-        def update(self, s, d, f, *args, **kwargs):
-            err = commutator_error(s, d, f, self.Corth)
-            if err is None:
-                return super().update(s, d, f, *args, **kwargs)
-            # the rest as pyscf.scf.diis.CDIIS.update, on this error vector
-            f_prev = kwargs.get("f_prev", None)
-            if abs(self.damp) < 1e-6 or f_prev is None:
-                xnew = lib.diis.DIIS.update(self, f, xerr=err)
-            else:
-                xnew = lib.diis.DIIS.update(self, f * (1 - self.damp) + f_prev * self.damp, xerr=err)
-            if self.rollback > 0 and len(self._bookkeep) == self.space:
-                self._bookkeep = self._bookkeep[-self.rollback:]
-            return xnew
+        """PySCF's commutator DIIS, its small linear system tested and solved with numpy where that
+        gives PySCF's numbers (see the module docstring)."""
 
         def extrapolate(self, nd=None):
-            # pyscf.lib.diis.DIIS.extrapolate with numpy's eigenvalues for the dependence test
+            # pyscf.lib.diis.DIIS.extrapolate, its eigenvalue test by numpy (with a margin)
             if nd is None:
                 nd = self.get_num_vec()
             if nd == 0:
                 raise RuntimeError("No vector found in DIIS object.")
             h = self._H[: nd + 1, : nd + 1]
-            if np.iscomplexobj(h):
+            if np.iscomplexobj(h) or np.any(abs(np.linalg.eigvalsh(h)) < DEPENDENCE_MARGIN):
+                # (near) linear dependence: PySCF's own test and pseudo-inverse, on its eigenvectors
                 return super().extrapolate(nd)
             g = np.zeros(nd + 1)
             g[0] = 1.0
-            w = np.linalg.eigvalsh(h)
-            if np.any(abs(w) < 1e-14):  # linear dependence: PySCF's pseudo-inverse
-                w, v = np.linalg.eigh(h)
-                keep = abs(w) > 1e-14
-                c = np.dot(v[:, keep] * (1.0 / w[keep]), np.dot(v[:, keep].T, g))
-            else:
-                c = np.linalg.solve(h, g)
+            c = np.linalg.solve(h, g)
             xnew = None
             for i, ci in enumerate(c[1:]):
                 xi = np.asarray(self.get_vec(i))
