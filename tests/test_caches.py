@@ -174,6 +174,25 @@ def test_lean_eigensolver_gives_pyscf_orbitals():
     assert np.array_equal(e, e_ref) and np.array_equal(c, c_ref)
 
 
+def test_lean_diis_error_vector_is_pyscfs_to_the_last_bit():
+    # the reference is PySCF's own error vector (pyscf.scf.diis.get_err_vec_orth) on the matrices of a
+    # real UHF point, for both spin sets and one, and with an orthogonaliser that dropped functions
+    from pyscf.scf import diis, hf
+
+    from lcao.scan import lean
+
+    mol = build_molecule(("O", "O"), 2.4, parse_level("HF/6-31G"), 0, 2)
+    mf = _plain_scf(mol, "UHF")
+    s = mf.get_ovlp()
+    dm = mf.get_init_guess()
+    f = mf.get_fock(dm=dm)
+    x = hf.check_linear_dependency(s)
+    for args in ((s, dm, f, x), (s, dm[0], f[0], x), (s, dm, f, np.asfortranarray(x[:, 2:]))):
+        got = lean.commutator_error(*args)
+        assert got is not None and np.array_equal(got, diis.get_err_vec_orth(*args))
+    assert lean.commutator_error(s, dm, f[0], x) is None  # ROHF's shapes: PySCF computes it
+
+
 @pytest.mark.parametrize("dependent", [False, True])
 def test_lean_diis_step_equals_pyscf_step_to_the_last_bit(dependent):
     # the reference is PySCF's own extrapolation (pyscf.lib.diis.DIIS.extrapolate) on the same vectors;

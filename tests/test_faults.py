@@ -128,8 +128,11 @@ def test_two_runs_writing_one_store_both_finish_and_store_each_point_once(tmp_pa
     assert [p["energy_hartree"] for p in da["points"]] == pytest.approx([p["energy_hartree"] for p in db["points"]], abs=1e-9)
 
 
-#: long enough (about 100 points) that an interrupt after the first few lands mid-run
-LONG_CURVE = ["curve", "NO", "--level", "HF/6-31G", "--from", "0.9", "--to", "3.5", "--points", "40", "-q", "--no-plots"]
+#: long enough (about 340 stored points) that an interrupt after the first few lands mid-run: about 3 s
+#: between the eighth point and the end on an idle 2-core machine (with 40 grid points it was 1.2-1.8 s,
+#: and the test failed once on a loaded machine, most likely by an interrupt landing after the command
+#: had finished its work, when the process dies of the signal without a message)
+LONG_CURVE = ["curve", "NO", "--level", "HF/6-31G", "--from", "0.9", "--to", "3.5", "--points", "160", "-q", "--no-plots"]
 
 
 def test_ctrl_c_stops_cleanly_and_says_how_to_resume(tmp_path):

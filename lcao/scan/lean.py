@@ -5,7 +5,10 @@ functions, where the fixed cost of a library call outweighs its arithmetic. Meas
 (N2, 6-31G, 18 functions; PySCF 2.14, SciPy 1.17, NumPy 2.4, one thread; microseconds):
 ``scipy.linalg.eigh`` of an 18 x 18 matrix 124, of which the LAPACK routine it calls (dsyevr) is
 55: the rest is the wrapper's argument checks and batching. PySCF's ``_eigh`` calls it for each
-spin in every cycle, and its DIIS once more on the small DIIS matrix. J and K: see
+spin in every cycle, and its DIIS once more on the small DIIS matrix. ``pyscf.lib.dot`` of two
+18 x 18 matrices 21, of which the call of its BLAS routine is 5: the rest is argument conversion
+(numpy's ``@`` takes 2, but on another BLAS build, whose last bits differ). PySCF's commutator
+DIIS error vector makes four such products per spin set and cycle: 160 for UHF. J and K: see
 :mod:`lcao.scan.jk`.
 
 :func:`attach` swaps an SCF object's class for a same-named subclass of its own class (so
@@ -19,10 +22,11 @@ PySCF's second-order copy, which subclasses the object's class, keeps it) with:
   eigenvalue comes near PySCF's dependence threshold (:data:`DEPENDENCE_MARGIN`) the step is
   PySCF's own: its pseudo-inverse is built on scipy's eigenvectors, and numpy's (another LAPACK
   routine) differ in the last bits. The error vector stays PySCF's (``pyscf.lib.dot``, its BLAS)
-  for the same reason. Last-bit differences of either kind were enough to move points: numpy's
-  error vector sent sweeps of O2 and NO onto other, sometimes higher, UHF solutions at long range
-  (O2 6-31G beyond 2.7 A by up to 2.8e-4 Eh), and numpy's pseudo-inverse the last point of O2
-  STO-3G at 3.0 A by 7e-6 Eh;
+  for the same reason; :func:`commutator_error` computes it by PySCF's routine called directly,
+  with the same arguments, and forms x^T S once for both spin sets (100 us for UHF). Last-bit
+  differences were enough to move points: numpy's error vector sent sweeps of O2 and NO onto
+  other, sometimes higher, UHF solutions at long range (O2 6-31G beyond 2.7 A by up to 2.8e-4
+  Eh), and numpy's pseudo-inverse the last point of O2 STO-3G at 3.0 A by 7e-6 Eh;
 * ``get_jk``: the matrix products of :mod:`lcao.scan.jk` where the basis has at most
   :data:`lcao.scan.jk.MAX_NAO` functions and the integrals are in memory (``mf._eri``);
 * ``_finalize``: nothing below PySCF's NOTE verbosity (its UHF computes <S^2> there only to log it).
@@ -32,10 +36,12 @@ Complex matrices and every case not listed go to PySCF's own methods unchanged. 
 class changes no number: with PySCF's eigensolver and DIIS put back, an SCF gives the same
 energy and orbitals to the last bit (tests/test_caches.py), and twelve 40-point curves of N2, NO,
 O2, CO, CN- and BF in STO-3G and 6-31G gave every point of every sweep to the last bit of the code
-before these two methods were added (``python -m benchmarks.numbers``).
+before this class (``python -m benchmarks.numbers``).
 """
 
 from __future__ import annotations
+
+import ctypes
 
 import numpy as np
 
@@ -80,12 +86,100 @@ def orthogonal_eigh(h, x):
     return w, hf._adjust_phase_(x.dot(v))
 
 
+_GEMM: list = []
+
+
+def _pyscf_gemm():
+    """PySCF's own matrix product routine (``NPdgemm`` of its ``libnp_helper``, on the BLAS PySCF
+    ships), with its argument types declared once; None where this PySCF has no such routine."""
+    if not _GEMM:
+        fn = None
+        try:
+            from pyscf.lib import numpy_helper
+
+            fn = ctypes.CDLL(numpy_helper._np_helper._name).NPdgemm
+            fn.argtypes = ([ctypes.c_char, ctypes.c_char] + [ctypes.c_int] * 9 + [ctypes.c_void_p] * 3
+                           + [ctypes.c_double] * 2)
+            fn.restype = None
+        except (ImportError, AttributeError, OSError):  # pragma: no cover - PySCF's layout changed
+            fn = None
+        _GEMM.append(fn)
+    return _GEMM[0]
+
+
+def pyscf_dot(gemm, a, b):
+    """``pyscf.lib.dot(a, b)`` for two non-empty 2-D float64 arrays: the same routine called with the
+    same arguments (so the same bits), without the wrapper's per-call argument conversion."""
+    m, k = a.shape
+    n = b.shape[1]
+    if a.flags.c_contiguous:
+        ta = b"N"
+    elif a.flags.f_contiguous:
+        ta, a = b"T", a.T
+    else:
+        ta, a = b"N", np.asarray(a, order="C")
+    if b.flags.c_contiguous:
+        tb = b"N"
+    elif b.flags.f_contiguous:
+        tb, b = b"T", b.T
+    else:
+        tb, b = b"N", np.asarray(b, order="C")
+    c = np.empty((m, n))
+    gemm(tb, ta, n, m, k, b.shape[1], a.shape[1], n, 0, 0, 0, _address(b), _address(a), _address(c), 1.0, 0.0)
+    return c
+
+
+def _address(a) -> int:
+    return a.__array_interface__["data"][0]  # (``a.ctypes.data`` takes longer than the product)
+
+
+def commutator_error(s, d, f, x):
+    """PySCF's DIIS error vector (``pyscf.scf.diis.get_err_vec_orth``: x^T (S D F - F D S) x, spin sets
+    stacked) to the last bit, for a restricted (``d``, ``f`` (n, n)) or unrestricted (``d``, ``f``
+    (2, n, n)) real density and Fock matrix; None for every other case (PySCF then computes it)."""
+    gemm = _pyscf_gemm()
+    if (gemm is None or x is None or hasattr(x, "orbsym") or not isinstance(f, np.ndarray)
+            or not isinstance(d, np.ndarray) or not isinstance(s, np.ndarray) or s.ndim != 2 or x.ndim != 2
+            or 0 in x.shape or any(a.dtype != np.float64 for a in (s, d, f, x))):
+        return None
+    if f.ndim == 2 and d.ndim == 2:
+        pairs = ((d, f),)
+    elif f.ndim == 3 and d.ndim == 3 and f.shape[0] == 2 and d.shape[0] == 2:
+        pairs = ((d[0], f[0]), (d[1], f[1]))
+    else:
+        return None
+    parts = []
+    xs = pyscf_dot(gemm, x.T, s)  # the same first product for both spin sets: formed once
+    for dk, fk in pairs:
+        # reduce(lib.dot, (x^T, s, d, f, x)), left to right, as PySCF multiplies
+        sdf = pyscf_dot(gemm, pyscf_dot(gemm, pyscf_dot(gemm, xs, dk), fk), x)
+        parts.append((sdf.T - sdf).ravel())
+    return parts[0] if len(parts) == 1 else np.hstack(parts)
+
+
 def _lean_diis():
+    from pyscf import lib
+    from pyscf.lib import logger
     from pyscf.scf import diis
 
     class LeanDIIS(diis.CDIIS):
-        """PySCF's commutator DIIS, its small linear system tested and solved with numpy where that
-        gives PySCF's numbers (see the module docstring)."""
+        """PySCF's commutator DIIS, its error vector from PySCF's routine called directly and its small
+        linear system tested and solved with numpy where that gives PySCF's numbers (see the module
+        docstring)."""
+
+        def update(self, s, d, f, *args, **kwargs):
+            err = commutator_error(s, d, f, self.Corth)
+            if err is None or self.verbose >= logger.DEBUG1:
+                return super().update(s, d, f, *args, **kwargs)
+            # the rest as pyscf.scf.diis.CDIIS.update, on the same error vector
+            f_prev = kwargs.get("f_prev", None)
+            if abs(self.damp) < 1e-6 or f_prev is None:
+                xnew = lib.diis.DIIS.update(self, f, xerr=err)
+            else:
+                xnew = lib.diis.DIIS.update(self, f * (1 - self.damp) + f_prev * self.damp, xerr=err)
+            if self.rollback > 0 and len(self._bookkeep) == self.space:
+                self._bookkeep = self._bookkeep[-self.rollback:]
+            return xnew
 
         def extrapolate(self, nd=None):
             # pyscf.lib.diis.DIIS.extrapolate, its eigenvalue test by numpy (with a margin)
