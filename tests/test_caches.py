@@ -193,6 +193,20 @@ def test_lean_diis_error_vector_is_pyscfs_to_the_last_bit():
     assert lean.commutator_error(s, dm, f[0], x) is None  # ROHF's shapes: PySCF computes it
 
 
+def test_lean_diis_without_pyscfs_product_routine_takes_pyscfs_path(monkeypatch):
+    # where a PySCF build has no NPdgemm the error vector is left to PySCF: the same SCF to the last bit
+    from lcao.scan import lean
+
+    mol = build_molecule(("N", "O"), 2.2, parse_level("HF/6-31G"), 0, 1)
+    with_routine = make_scf(mol, "UHF")
+    with_routine.kernel()
+    monkeypatch.setattr(lean, "_GEMM", [None])
+    without = make_scf(mol, "UHF")
+    assert lean.commutator_error(without.get_ovlp(), *[np.zeros((2, 18, 18))] * 2, np.eye(18)) is None
+    without.kernel()
+    assert without.converged and without.cycles == with_routine.cycles and without.e_tot == with_routine.e_tot
+
+
 @pytest.mark.parametrize("dependent", [False, True])
 def test_lean_diis_step_equals_pyscf_step_to_the_last_bit(dependent):
     # the reference is PySCF's own extrapolation (pyscf.lib.diis.DIIS.extrapolate) on the same vectors;

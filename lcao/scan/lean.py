@@ -134,7 +134,7 @@ def _address(a) -> int:
 
 
 def commutator_error(s, d, f, x):
-    """PySCF's DIIS error vector (``pyscf.scf.diis.get_err_vec_orth``: x^T (S D F - F D S) x, spin sets
+    """PySCF's DIIS error vector (``pyscf.scf.diis.get_err_vec_orth``: x^T (F D S - S D F) x, spin sets
     stacked) to the last bit, for a restricted (``d``, ``f`` (n, n)) or unrestricted (``d``, ``f``
     (2, n, n)) real density and Fock matrix; None for every other case (PySCF then computes it)."""
     gemm = _pyscf_gemm()
