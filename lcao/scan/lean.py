@@ -112,21 +112,20 @@ def pyscf_dot(gemm, a, b):
     same arguments (so the same bits), without the wrapper's per-call argument conversion."""
     m, k = a.shape
     n = b.shape[1]
-    if a.flags.c_contiguous:
-        ta = b"N"
-    elif a.flags.f_contiguous:
-        ta, a = b"T", a.T
-    else:
-        ta, a = b"N", np.asarray(a, order="C")
-    if b.flags.c_contiguous:
-        tb = b"N"
-    elif b.flags.f_contiguous:
-        tb, b = b"T", b.T
-    else:
-        tb, b = b"N", np.asarray(b, order="C")
+    ta, a = _row_major(a)
+    tb, b = _row_major(b)
     c = np.empty((m, n))
     gemm(tb, ta, n, m, k, b.shape[1], a.shape[1], n, 0, 0, 0, _address(b), _address(a), _address(c), 1.0, 0.0)
     return c
+
+
+def _row_major(a):
+    """(BLAS transpose flag, C-ordered array) as ``pyscf.lib.numpy_helper.ddot`` chooses them."""
+    if a.flags.c_contiguous:
+        return b"N", a
+    if a.flags.f_contiguous:
+        return b"T", a.T
+    return b"N", np.asarray(a, order="C")
 
 
 def _address(a) -> int:
