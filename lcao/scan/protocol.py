@@ -228,8 +228,7 @@ class _Runner:
         for got, computed, reused, fresh, integrals in results[1:]:
             self.computed += computed
             self.reused += reused
-            for key, eri, one in integrals:
-                INTEGRALS.add(key, eri, one)
+            INTEGRALS.add_sets(integrals)
             if AtomsTask.KEY in got:
                 out[AtomsTask.KEY] = got.pop(AtomsTask.KEY)
             if JobsTask.KEY in got:
@@ -333,8 +332,7 @@ def _take_integrals() -> None:
     """Keep the integral sets forked children have sent so far (:class:`IntegralsTask`)."""
     from .workers import take_side_work
 
-    for key, eri, one in take_side_work():
-        INTEGRALS.add(key, eri, one)
+    INTEGRALS.add_sets(take_side_work())
 
 
 @dataclass(frozen=True)

@@ -200,6 +200,12 @@ class IntegralCache:
                 a.flags.writeable = False
             self._one.put(key, tuple(one))
 
+    def add_sets(self, sets) -> None:
+        """Keep every ``(key, two-electron set, one-electron set)`` of ``sets`` (as :meth:`export`
+        gives them, from another process)."""
+        for key, eri, one in sets:
+            self.add(key, eri, one)
+
     def kept_keys(self) -> set:
         """Keys of the geometries whose two-electron integrals are kept now."""
         return set(self._eri.keys())
