@@ -70,7 +70,7 @@ def baseline(species, level, mult, r):
 
 def tool(species, level, mult, r):
     import lcao
-    from lcao.pipeline import clear_caches
+    from lcao.methods.cache import clear_caches
     from lcao.scan.grid import Grid
     from lcao.units import angstrom_to_bohr
 

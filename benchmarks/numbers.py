@@ -29,6 +29,7 @@ BASES = ("STO-3G", "6-31G")
 
 def record(path: str, points: int = 40) -> dict:
     from benchmarks.__main__ import tool
+    from lcao.units import bohr_to_angstrom
 
     r = np.linspace(0.8, 3.0, points)
     out = {}
@@ -41,7 +42,7 @@ def record(path: str, points: int = 40) -> dict:
                 "sweeps_hartree": {k: [p.energy_hartree if p else None for p in v]
                                    for k, v in res.scan.sweeps.items()},
                 "refined_hartree": [p.energy_hartree for p in res.refined],
-                "re_angstrom": res.fit.as_dict().get("re_angstrom") if res.fit else None,
+                "re_angstrom": float(bohr_to_angstrom(res.fit.local.re)) if res.fit else None,
             }
     with open(path, "w") as fh:
         json.dump(out, fh, indent=1)

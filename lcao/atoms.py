@@ -1,56 +1,18 @@
-"""Separated-atom references at the same level of theory.
+"""Separated-atom limits: which atom states a curve needs and how they combine (pure functions).
 
-Atoms are computed unrestricted, without symmetry, from two starting guesses
-and with internal stability followed, so each is the lowest UHF determinant of
-its spin. Ground-state spins follow Hund's rule from the element's ground
-configuration (:func:`lcao.species.hund_unpaired`). These are not the
-spherically averaged atoms PySCF uses for its initial guess, which lie
-0.35-0.56 Eh higher.
-
-For an ion the charge goes on whichever atom gives the lower total energy;
-every placement tried is reported.
+The atoms themselves are computed by the level's method (:meth:`lcao.methods.Method.atom`) at the
+same level as the molecule, in their Hund's-rule ground spins (:func:`lcao.species.hund_unpaired`).
+For an ion the charge goes on whichever atom gives the lower total energy; every placement tried is
+reported. The sweeps from the atoms start from the two atoms side by side, in the spin arrangement of
+lowest energy that gives the molecule's spin projection.
 """
 
 from __future__ import annotations
 
 import itertools
-import logging
-from dataclasses import dataclass, field
-
-import numpy as np
+from dataclasses import dataclass
 
 from .species import Species, hund_unpaired
-
-log = logging.getLogger(__name__)
-
-
-@dataclass(frozen=True)
-class AtomState:
-    """One atom (or atomic ion) at the level of theory.
-
-    Attributes:
-        symbol, charge: the atom and its charge.
-        spin: 2S, alpha minus beta electrons.
-        energy_hartree: UHF energy (0 for a bare nucleus).
-        converged: whether the SCF converged.
-        dm: (alpha, beta) density matrices in the atom's basis.
-    """
-
-    symbol: str
-    charge: int
-    spin: int
-    energy_hartree: float
-    converged: bool
-    dm: np.ndarray = field(repr=False, compare=False)
-
-    def as_dict(self) -> dict:
-        return {
-            "symbol": self.symbol,
-            "charge": self.charge,
-            "multiplicity": self.spin + 1,
-            "energy_hartree": self.energy_hartree,
-            "converged": self.converged,
-        }
 
 
 @dataclass(frozen=True)
@@ -58,12 +20,12 @@ class SeparatedAtoms:
     """The separated-atom limit of a species.
 
     Attributes:
-        atoms: the two atom states in the order of the species.
+        atoms: the two atom states (:class:`lcao.methods.AtomResult`) in the order of the species.
         energy_hartree: their sum, the dissociation limit.
         placements: (description, energy) of every charge placement tried.
     """
 
-    atoms: tuple[AtomState, AtomState]
+    atoms: tuple
     energy_hartree: float
     placements: tuple[tuple[str, float], ...] = ()
 
@@ -82,77 +44,6 @@ def ground_spin(symbol: str, charge: int) -> int:
     return hund_unpaired(atomic_number(symbol) - charge)
 
 
-def compute_atom(symbol: str, charge: int, spin: int, level) -> AtomState:
-    """UHF atom without symmetry, lowest of two guesses, stability followed."""
-    from .scan.scf import build_atom, solve
-    from .species import atomic_number
-
-    n_el = atomic_number(symbol) - charge
-    if n_el == 0:
-        mol = build_atom(symbol, level, charge, 0)
-        return AtomState(symbol, charge, 0, 0.0, True, np.zeros((2, mol.nao, mol.nao)))
-    mol = build_atom(symbol, level, charge, spin)
-    best = None
-    for guess in ("minao", "atom"):
-        from .scan.scf import make_scf
-
-        mf0 = make_scf(mol, "UHF")
-        mf0.init_guess = guess
-        try:
-            dm0 = mf0.get_init_guess(mol, guess)
-        except Exception:  # some guesses are unavailable for some elements
-            continue
-        sol = solve(mol, "UHF", dm0)
-        if sol.converged and (best is None or sol.energy < best.energy - 1e-10):
-            best = sol
-    if best is None:
-        sol = solve(mol, "UHF", None)
-        return AtomState(symbol, charge, spin, sol.energy, False, sol.dm)
-    return AtomState(symbol, charge, spin, best.energy, True, best.dm)
-
-
-#: atom states computed in this process, per (symbol, charge, spin, level key): the curves of a
-#: series share their atoms even without a file store
-_COMPUTED: dict = {}
-
-
-class AtomCache:
-    """Atom states per (symbol, charge, spin) for one level, backed by the store if given."""
-
-    def __init__(self, level, store=None):
-        self.level = level
-        self.store = store
-        self._mem: dict[tuple[str, int, int], AtomState] = {}
-
-    def get(self, symbol: str, charge: int, spin: int) -> AtomState:
-        key = (symbol, charge, spin)
-        if key in self._mem:
-            return self._mem[key]
-        state = self.store.get_atom(symbol, charge, spin, self.level) if self.store is not None else None
-        if state is None:
-            pkey = key + (self.level.key(),)
-            state = _COMPUTED.get(pkey)
-            if state is None:
-                state = _COMPUTED[pkey] = compute_atom(symbol, charge, spin, self.level)
-            if self.store is not None:
-                self.store.put_atom(state, self.level)
-        self._mem[key] = state
-        return state
-
-    def add(self, state: AtomState) -> None:
-        """Take a state computed elsewhere (a forked sweep process) into this cache and its store."""
-        key = (state.symbol, state.charge, state.spin)
-        if key in self._mem:
-            return
-        self._mem[key] = state
-        _COMPUTED.setdefault(key + (self.level.key(),), state)
-        if self.store is not None and self.store.get_atom(*key, self.level) is None:
-            self.store.put_atom(state, self.level)
-
-    def ground(self, symbol: str, charge: int) -> AtomState:
-        return self.get(symbol, charge, ground_spin(symbol, charge))
-
-
 def charge_placements(species: Species) -> list[tuple[int, int]]:
     """Every way to put the net charge on the two atoms (same sign on both, no negative electron count)."""
     q = species.charge
@@ -165,21 +56,7 @@ def charge_placements(species: Species) -> list[tuple[int, int]]:
     return out
 
 
-def separated_atoms(species: Species, cache: AtomCache) -> SeparatedAtoms:
-    """The lowest separated-atom limit: Hund ground states, best charge placement."""
-    tried = []
-    best = None
-    for qa, qb in charge_placements(species):
-        a = cache.ground(species.atoms[0], qa)
-        b = cache.ground(species.atoms[1], qb)
-        e = a.energy_hartree + b.energy_hartree
-        tried.append((f"{species.atoms[0]}{_q(qa)} + {species.atoms[1]}{_q(qb)}", e))
-        if best is None or e < best[2]:
-            best = (a, b, e)
-    return SeparatedAtoms((best[0], best[1]), best[2], tuple(tried))
-
-
-def _q(q: int) -> str:
+def charge_text(q: int) -> str:
     if q == 0:
         return ""
     return ("+" if q > 0 else "-") if abs(q) == 1 else f"^{abs(q)}{'+' if q > 0 else '-'}"
@@ -188,9 +65,8 @@ def _q(q: int) -> str:
 def fragment_spins(spin_a: int, spin_b: int, target: int):
     """Atom spin projections that add up to a molecular 2*Ms of ``target``.
 
-    Yields (2*Ms_A, 2*Ms_B, flip) with flip False (spins parallel), 'b' (B's
-    spin flipped) or 'a' (A's flipped); Hund spins first, then spins lowered
-    on one or both atoms.
+    Yields (2*Ms_A, 2*Ms_B, flip) with flip False (spins parallel), 'b' (B's spin flipped) or 'a'
+    (A's flipped); Hund spins first, then spins lowered on one or both atoms.
     """
     opts_a = [spin_a - 2 * k for k in range(spin_a // 2 + 1)]
     opts_b = [spin_b - 2 * k for k in range(spin_b // 2 + 1)]
@@ -203,21 +79,8 @@ def fragment_spins(spin_a: int, spin_b: int, target: int):
             yield ma, mb, "a"
 
 
-def fragment_density(state_a: AtomState, state_b: AtomState, flip) -> np.ndarray:
-    """Block-diagonal (alpha, beta) density of two atoms; ``flip`` 'b' flips B's spin, 'a' flips A's."""
-    from scipy.linalg import block_diag
-
-    da = np.asarray(state_a.dm)
-    db = np.asarray(state_b.dm)
-    if flip == "a":
-        da = da[::-1]
-    elif flip == "b":
-        db = db[::-1]
-    return np.array([block_diag(da[0], db[0]), block_diag(da[1], db[1])])
-
-
 def needed_states(species: Species, spin: int) -> list[tuple[str, int, int]]:
-    """(symbol, charge, 2S) of every atom state :func:`separated_atoms` and :func:`fragment_guesses`
+    """(symbol, charge, 2S) of every atom state :func:`separated_atoms` and :func:`fragment_choices`
     ask for, in the order they ask."""
     out = []
     for qa, qb in charge_placements(species):
@@ -229,28 +92,56 @@ def needed_states(species: Species, spin: int) -> list[tuple[str, int, int]]:
     return list(dict.fromkeys(out))
 
 
-def fragment_guesses(species: Species, spin: int, cache: AtomCache, max_candidates: int = 1):
-    """Starting densities from the separated atoms for a molecule with 2S = ``spin``.
+def separated_atoms(species: Species, atoms: dict) -> SeparatedAtoms:
+    """The lowest separated-atom limit (Hund ground states, best charge placement) from the computed
+    atom states ``atoms`` ((symbol, charge, 2S) -> AtomResult)."""
+    tried = []
+    best = None
+    for qa, qb in charge_placements(species):
+        a = atoms[(species.atoms[0], qa, ground_spin(species.atoms[0], qa))]
+        b = atoms[(species.atoms[1], qb, ground_spin(species.atoms[1], qb))]
+        e = a.energy_hartree + b.energy_hartree
+        tried.append((f"{species.atoms[0]}{charge_text(qa)} + {species.atoms[1]}{charge_text(qb)}", e))
+        if best is None or e < best[2]:
+            best = (a, b, e)
+    return SeparatedAtoms((best[0], best[1]), best[2], tuple(tried))
 
-    Returns a list of (label, dm, fragment_energy) with one entry per charge
-    placement (for ions one with the charge on each atom): for each, the spin
-    arrangement of lowest separated-atom energy among those that give the
-    requested spin projection.
+
+@dataclass(frozen=True)
+class FragmentChoice:
+    """The atoms a sweep from the separated atoms starts from (one per charge placement).
+
+    Attributes:
+        label: the sweep's name ('from-atoms', or 'from-atoms/C-+N' for ions).
+        a, b: the two atom states; flip: which atom's spin is turned over (False: none).
+        energy_hartree: their summed energy.
     """
+
+    label: str
+    a: object
+    b: object
+    flip: object
+    energy_hartree: float
+
+
+def fragment_choices(species: Species, spin: int, atoms: dict) -> list[FragmentChoice]:
+    """Per charge placement, the spin arrangement of lowest separated-atom energy among those that give
+    the molecular spin projection 2S = ``spin``."""
     out = []
     for qa, qb in charge_placements(species):
         sa = ground_spin(species.atoms[0], qa)
         sb = ground_spin(species.atoms[1], qb)
         best = None
         for ma, mb, flip in fragment_spins(sa, sb, spin):
-            a = cache.get(species.atoms[0], qa, ma)
-            b = cache.get(species.atoms[1], qb, mb)
+            a = atoms[(species.atoms[0], qa, ma)]
+            b = atoms[(species.atoms[1], qb, mb)]
             e = a.energy_hartree + b.energy_hartree
             if best is None or e < best[3] - 1e-9:
                 best = (a, b, flip, e)
         if best is None:
             continue
         a, b, flip, e = best
-        label = "from-atoms" if species.charge == 0 else f"from-atoms/{species.atoms[0]}{_q(qa)}+{species.atoms[1]}{_q(qb)}"
-        out.append((label, fragment_density(a, b, flip), e))
+        label = ("from-atoms" if species.charge == 0
+                 else f"from-atoms/{species.atoms[0]}{charge_text(qa)}+{species.atoms[1]}{charge_text(qb)}")
+        out.append(FragmentChoice(label, a, b, flip, e))
     return out

@@ -1,9 +1,9 @@
 """Levels of theory written method/basis (``HF/STO-3G``, ``UHF/6-31G*``).
 
-A :class:`Level` names a method from :data:`METHODS` and a basis PySCF knows.
-The method table says which family a method belongs to; the driver looks the
-family up, so adding MP2, CCSD(T) or a DFT functional means one table row and
-one solver, with no change for the driver's callers.
+A :class:`Level` names a method registered in :mod:`lcao.methods` and a basis
+PySCF knows. The registry says which family computes a method; the driver asks
+the family, so adding a level of theory means one module that registers itself,
+with no change for the driver or its callers.
 
 Cartesian or spherical d shells follow the trade's convention unless the user
 overrides it: the Pople split-valence sets of the 3-21G, 4-31G and 6-31G
@@ -22,15 +22,6 @@ from functools import lru_cache
 
 from .errors import LevelError
 
-#: method name -> (family, reference). ``reference`` 'auto' means RHF for a
-#: closed-shell singlet and UHF otherwise.
-METHODS: dict[str, tuple[str, str]] = {
-    "HF": ("scf", "auto"),
-    "RHF": ("scf", "RHF"),
-    "UHF": ("scf", "UHF"),
-    "ROHF": ("scf", "ROHF"),
-}
-
 _POPLE_CARTESIAN = re.compile(r"^[346]-?(21|31)\+*G", re.IGNORECASE)
 
 
@@ -44,7 +35,7 @@ class Level:
     """A level of theory.
 
     Attributes:
-        method: canonical method name, a key of :data:`METHODS` (``'HF'``).
+        method: canonical method name, registered in :mod:`lcao.methods` (``'HF'``).
         basis: basis name as PySCF reads it (``'6-31G*'``).
         cartesian: Cartesian (True) or spherical (False) d and higher shells.
         cartesian_source: ``'convention'`` or ``'user'``.
@@ -54,15 +45,6 @@ class Level:
     basis: str
     cartesian: bool
     cartesian_source: str = "convention"
-
-    @property
-    def family(self) -> str:
-        return METHODS[self.method][0]
-
-    @property
-    def reference(self) -> str:
-        """'auto', 'RHF', 'UHF' or 'ROHF'."""
-        return METHODS[self.method][1]
 
     @property
     def text(self) -> str:
@@ -77,18 +59,6 @@ class Level:
         else:
             why = "Pople convention" if self.cartesian else "convention for this basis"
         return f"{kind} d shells ({why})"
-
-    def resolved_reference(self, multiplicity: int) -> str:
-        """The SCF reference this level uses for a state of ``multiplicity``."""
-        ref = self.reference
-        if ref == "auto":
-            return "RHF" if multiplicity == 1 else "UHF"
-        if ref == "RHF" and multiplicity != 1:
-            raise LevelError(
-                f"RHF needs a closed-shell singlet, but multiplicity is {multiplicity};"
-                " use ROHF, UHF or HF for open shells"
-            )
-        return ref
 
     def key(self) -> str:
         """The text that identifies the level in the results store."""
@@ -124,12 +94,15 @@ def parse_level(text: str, cartesian: bool | None = None) -> Level:
     if not isinstance(text, str) or "/" not in text:
         raise LevelError(f"level must be written METHOD/BASIS, e.g. HF/6-31G, got {text!r}")
     method, _, basis = text.strip().partition("/")
+    from .methods import known_methods
+
     method = method.strip().upper()
     basis = basis.strip()
-    if method not in METHODS:
-        near = difflib.get_close_matches(method, METHODS, n=3, cutoff=0.4)
+    names = known_methods()
+    if method not in names:
+        near = difflib.get_close_matches(method, names, n=3, cutoff=0.4)
         hint = f"; nearest: {', '.join(near)}" if near else ""
-        raise LevelError(f"unknown method {method!r}{hint}; allowed: {', '.join(METHODS)}")
+        raise LevelError(f"unknown method {method!r}{hint}; allowed: {', '.join(names)}")
     if not basis:
         raise LevelError(f"level {text!r} names no basis; e.g. {method}/STO-3G")
     check_basis_name(basis)

@@ -6,7 +6,7 @@ The checks are pure functions on arrays so they can be tested alone.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -34,6 +34,7 @@ class CurvePoint:
             at this distance (0 when they agree, None with one sweep).
         rescue: rung of the rescue ladder that converged it.
         stability: outcome of stability following.
+        components: the method's energy components, hartree (e.g. reference and correlation).
     """
 
     r_bohr: float
@@ -47,6 +48,7 @@ class CurvePoint:
     sweep_gap_hartree: float | None = None
     rescue: str = "none"
     stability: str = "not checked"
+    components: dict = field(default_factory=dict, compare=False)
 
     @property
     def r_angstrom(self) -> float:
@@ -70,6 +72,8 @@ class CurvePoint:
             "sweep_gap_hartree": self.sweep_gap_hartree,
             "rescue": self.rescue,
             "stability": self.stability,
+            "energy_components_hartree": {k: (v if v is not None and math.isfinite(v) else None)
+                                          for k, v in self.components.items()},
         }
 
 

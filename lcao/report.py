@@ -61,7 +61,9 @@ def fit_lines(result: CurveResult) -> list[str]:
     """Fitted constants with uncertainties and units, and the handbook comparison where known."""
     from .data import handbook_row
 
-    d = result.fit.as_dict()
+    from .export.fit_fields import fit_document
+
+    d = fit_document(result.fit)
     ref = handbook_row(result.species.label) if result.multiplicity == _handbook_mult(result) else None
 
     def cmp(key, value, fmt):

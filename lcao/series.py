@@ -10,7 +10,6 @@ the others.
 from __future__ import annotations
 
 import logging
-import math
 from dataclasses import dataclass, field
 
 from .errors import InputError, LcaoError, SpeciesError
@@ -18,15 +17,6 @@ from .levels import Level
 from .species import Species, element_symbol, parse_species, atomic_number
 
 log = logging.getLogger(__name__)
-
-#: handbook columns compared with computed ones (row key, computed key)
-HANDBOOK_COMPARED = (
-    ("re_angstrom", "re_angstrom"),
-    ("we_cm1", "we_cm1"),
-    ("wexe_cm1", "wexe_cm1"),
-    ("be_cm1", "be_cm1"),
-    ("d0_ev", "d0_ev"),
-)
 
 
 def by_electron_count(n_electrons: int, elements, charges) -> list[Species]:
@@ -95,28 +85,49 @@ class Member:
 
 
 @dataclass(frozen=True)
+class OrbitalSummary:
+    """What a series row keeps of the orbital analysis at the fitted minimum."""
+
+    bond_order_mo_count: float | None
+    bond_order_mayer: float
+    bond_order_mulliken: float
+    unpaired_electrons: int
+    magnetism: str
+    s2: float
+
+
+@dataclass(frozen=True)
 class SeriesRow:
-    """The outcome of one member: computed values, handbook values and signed errors, or the reason it failed."""
+    """The outcome of one member, typed (atomic units in ``fit``; :mod:`lcao.export.series_files`
+    converts at the edge), or the reason it failed.
+
+    Attributes:
+        species, level: the member's label and level text; status: 'ok' or 'failed'; reason: why not.
+        multiplicity, reference: the state computed; points, trusted_points: grid points and trusted ones.
+        limit_energy_hartree: the separated atoms at the same level.
+        fit: :class:`lcao.fit.CurveFit` (None when the member failed).
+        orbitals: :class:`OrbitalSummary` at the fitted minimum, or None with ``orbital_error``.
+        handbook: the shipped handbook row (its own units, named in its keys), or {}.
+        valence_levels: per valence MO at the minimum: label, kind, spin, energy_hartree, occupation,
+            formal_class.
+        notes: the curve's notes and the fit's warnings.
+    """
 
     species: str
     level: str
     status: str
     reason: str | None = None
-    values: dict = field(default_factory=dict)
+    multiplicity: int | None = None
+    reference: str | None = None
+    points: int | None = None
+    trusted_points: int | None = None
+    limit_energy_hartree: float | None = None
+    fit: object = None
+    orbitals: OrbitalSummary | None = None
+    orbital_error: str | None = None
     handbook: dict = field(default_factory=dict)
-    errors: dict = field(default_factory=dict)
     valence_levels: tuple = ()
     notes: tuple = ()
-
-    def flat(self) -> dict:
-        """One flat record with units in the field names (for CSV)."""
-        out = {"species": self.species, "level": self.level, "status": self.status, "reason": self.reason or ""}
-        out.update(self.values)
-        for k, v in self.handbook.items():
-            out[f"handbook_{k}"] = v
-        for k, v in self.errors.items():
-            out[f"error_{k}"] = v
-        return out
 
 
 def _handbook(species: Species) -> dict:
@@ -129,67 +140,95 @@ def _handbook(species: Species) -> dict:
     return {k: row.get(k) for k in keep}
 
 
-def run_member(member: Member, store, progress=None) -> SeriesRow:
-    """Curve, fit and orbitals at the minimum of one member; failures become a row with the reason."""
-    from .pipeline import curve, orbitals, resolve_inputs
+async def run_member_async(session, member: Member) -> SeriesRow:
+    """Curve, fit and orbitals at the minimum of one member on a session; failures become a row with
+    the reason."""
+    from .masses import resolve_isotopes
+    from .pipeline import curve_async, orbitals_async, resolve_inputs
 
     sp, lv = member.species, member.level
     hb = _handbook(sp)
     try:
         sp, lv, grid = resolve_inputs(sp, lv, member.grid, member.multiplicity, None, member.points)
-        res = curve(sp, lv, grid, multiplicity=member.multiplicity, store=store, analyse_points=False, progress=progress)
+        res = await curve_async(session, sp, lv, grid, member.multiplicity, resolve_isotopes(sp.atoms),
+                                analyse_points=False)
     except LcaoError as exc:
         return SeriesRow(sp.label, lv.text, "failed", str(exc), handbook=hb)
-    values = {
-        "multiplicity": res.multiplicity,
-        "reference": res.scan.reference,
-        "trusted_points": len(res.trusted_points),
-        "points": len(res.points),
-        "limit_energy_hartree": res.limit_energy_hartree,
-    }
+    common = dict(multiplicity=res.multiplicity, reference=res.scan.reference, points=len(res.points),
+                  trusted_points=len(res.trusted_points), limit_energy_hartree=res.limit_energy_hartree, handbook=hb)
     if res.fit is None:
-        return SeriesRow(sp.label, lv.text, "failed", f"no fit: {res.fit_error}", values, hb, notes=res.scan.notes)
-    f = res.fit.as_dict()
-    for key in ("re_angstrom", "re_uncertainty_angstrom", "we_cm1", "wexe_cm1", "be_cm1", "alpha_e_cm1", "de_ev", "d0_ev", "zpe_cm1", "bound"):
-        values[key] = f[key]
-    values["morse_de_ev"] = f["morse"]["de_ev"] if f["morse"] else None
-    values["well_branch"] = f["well_branch"]
-    levels = ()
+        return SeriesRow(sp.label, lv.text, "failed", f"no fit: {res.fit_error}", notes=res.scan.notes, **common)
+    summary, error, levels = None, None, ()
     try:
-        orb = orbitals(sp, lv, at_minimum=True, multiplicity=res.multiplicity, grid=grid, store=store, base=res)
+        orb = await orbitals_async(session, sp, lv, at_minimum=True, multiplicity=res.multiplicity, grid=grid, base=res)
         a = orb.analysis
         bo = a.bond_orders()
-        values.update(
-            bond_order_mo_count=bo["mo_count"],
-            bond_order_mayer=bo["mayer"],
-            bond_order_mulliken=bo["mulliken"],
-            unpaired_electrons=a.unpaired_electrons,
-            magnetism=a.magnetism,
-            s2=a.s2,
-        )
+        summary = OrbitalSummary(bo["mo_count"], bo["mayer"], bo["mulliken"], a.unpaired_electrons, a.magnetism, a.s2)
         levels = tuple(
-            {"label": m.label, "kind": m.kind, "spin": m.spin, "energy_hartree": m.energy_hartree, "occupation": m.occupation,
-             "formal_class": m.formal_class}
-            for m in a.orbitals
-            if m.formal_class != "core"
+            {"label": m.label, "kind": m.kind, "spin": m.spin, "energy_hartree": m.energy_hartree,
+             "occupation": m.occupation, "formal_class": m.formal_class}
+            for m in a.orbitals if m.formal_class != "core"
         )
     except LcaoError as exc:
-        values["orbital_analysis_error"] = str(exc)
-    errors = {}
-    if hb and hb.get("multiplicity") == res.multiplicity:
-        for hk, ck in HANDBOOK_COMPARED:
-            if hb.get(hk) is not None and values.get(ck) is not None:
-                errors[hk] = values[ck] - hb[hk]
-    notes = tuple(res.scan.notes) + tuple(res.fit.warnings)
-    return SeriesRow(sp.label, lv.text, "ok", None, values, hb, errors, levels, notes)
+        error = str(exc)
+    return SeriesRow(sp.label, lv.text, "ok", None, fit=res.fit, orbitals=summary, orbital_error=error,
+                     valence_levels=levels, notes=tuple(res.scan.notes) + tuple(res.fit.warnings), **common)
 
 
-def run_series(members, store, progress=None) -> tuple[SeriesRow, ...]:
-    """Run every member in order (see :func:`run_member`)."""
-    rows = []
-    for m in members:
-        log.info("series member %s %s", m.species.label, m.level.text)
-        rows.append(run_member(m, store, progress))
+def expected_cost(member: Member) -> float:
+    """A rough relative cost of a member, to start the dearest first (the executor takes tasks in
+    order, so the cheap ones fill the gaps at the end): more points, more sweeps from the atoms (one
+    per charge placement) and more candidate multiplicities to probe cost more."""
+    from .atoms import charge_placements
+
+    points = len(member.grid.r_bohr) if member.grid is not None else (member.points or 40)
+    probes = 1 if member.multiplicity is not None else len(member.species.multiplicity_candidates())
+    return points * (1 + len(charge_placements(member.species))) * (1 + 0.3 * probes)
+
+
+def member_basis_size(member: Member) -> int:
+    """Basis functions of a member's molecule (0 when its basis lacks an element: it fails as a row)."""
+    from .levels import check_basis_covers
+    from .pipeline import basis_size
+
+    try:
+        check_basis_covers(member.level, member.species.atoms)
+        return basis_size(member.species, member.level)
+    except LcaoError:
+        return 0
+
+
+def run_series(members, store=None, *, workers: int | None = None, progress=None, executor=None) -> tuple[SeriesRow, ...]:
+    """Run every member (see :func:`run_member_async`); rows in member order.
+
+    The members' curves run side by side on one executor (worker processes, dearest first). Members
+    whose molecule has :data:`lcao.threads.THREADED_FROM_NAO` or more basis functions run afterwards in
+    this process, one at a time, with the cores as threads.
+    """
+    import asyncio
+
+    from .scan.session import open_session, run_sync
+    from .threads import THREADED_FROM_NAO
+
+    members = list(members)
+    sizes = [member_basis_size(m) for m in members]
+    rows: list = [None] * len(members)
+
+    async def batch(session, idx):
+        idx = sorted(idx, key=lambda i: -expected_cost(members[i]))
+        got = await asyncio.gather(*(run_member_async(session, members[i]) for i in idx))
+        for i, row in zip(idx, got):
+            rows[i] = row
+            log.info("series member %s %s: %s", row.species, row.level, row.status)
+
+    small = [i for i, n in enumerate(sizes) if n < THREADED_FROM_NAO]
+    large = [i for i, n in enumerate(sizes) if n >= THREADED_FROM_NAO]
+    if small:
+        with open_session(store, workers, 0, progress, executor) as session:
+            run_sync(batch(session, small))
+    for i in large:
+        with open_session(store, workers, sizes[i], progress, executor) as session:
+            run_sync(batch(session, [i]))
     return tuple(rows)
 
 
@@ -201,32 +240,3 @@ def members_from(species_texts, levels, grid=None, multiplicity=None, points=Non
         for lv in levels:
             out.append(Member(sp, lv, grid, multiplicity, points))
     return out
-
-
-def table_lines(rows) -> list[str]:
-    """The table printed on stdout."""
-    head = (
-        f"{'species':8s} {'level':14s} {'mult':>4s} {'r_e/A':>8s} {'hb r_e':>7s} {'err':>7s} {'w_e/cm-1':>9s} {'hb w_e':>7s}"
-        f" {'D_e/eV':>7s} {'D_0/eV':>7s} {'hb D_0':>7s} {'BO(MO)':>6s} {'Mayer':>6s} {'unp':>3s}  magnetism / reason"
-    )
-    lines = [head]
-
-    def num(v, fmt):
-        width = int("".join(ch for ch in fmt.split(".")[0] if ch.isdigit()) or 0)
-        if isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v):
-            return format(v, fmt)
-        return "-".rjust(width)
-
-    for r in rows:
-        v, h, e = r.values, r.handbook, r.errors
-        if r.status != "ok":
-            lines.append(f"{r.species:8s} {r.level:14s} {'':>4s} {'failed: ' + (r.reason or ''):s}")
-            continue
-        lines.append(
-            f"{r.species:8s} {r.level:14s} {v.get('multiplicity', ''):>4} {num(v.get('re_angstrom'), '8.4f')} {num(h.get('re_angstrom'), '7.4f')}"
-            f" {num(e.get('re_angstrom'), '+7.4f')} {num(v.get('we_cm1'), '9.1f')} {num(h.get('we_cm1'), '7.1f')}"
-            f" {num(v.get('de_ev'), '7.3f') if v.get('bound') else 'unbound':>7s} {num(v.get('d0_ev'), '7.3f')} {num(h.get('d0_ev'), '7.3f')}"
-            f" {num(v.get('bond_order_mo_count'), '6.1f')} {num(v.get('bond_order_mayer'), '6.3f')} {v.get('unpaired_electrons', '-'):>3}"
-            f"  {v.get('magnetism', '')}"
-        )
-    return lines

@@ -87,16 +87,25 @@ class Sheet:
     warnings: tuple = field(default=())
 
 
-def _computed_constants(species, level, multiplicity, grid, store, isotopes, points):
-    from .pipeline import curve, orbitals
+def _computed_constants(species, level, multiplicity, grid, store, isotopes, workers=None, progress=None):
+    from .masses import resolve_isotopes
+    from .pipeline import basis_size, curve_async, orbitals_async
+    from .scan.session import open_session, run_sync
 
-    res = curve(species, level, grid, multiplicity=multiplicity, store=store, isotopes=isotopes, points=points, analyse_points=False)
-    if res.fit is None:
-        raise InputError(f"no fitted constants for {res.species.label} at {res.level.text}: {res.fit_error}")
+    async def both(session):
+        res = await curve_async(session, species, level, grid, multiplicity, resolve_isotopes(species.atoms, isotopes),
+                                analyse_points=False)
+        if res.fit is None:
+            raise InputError(f"no fitted constants for {res.species.label} at {res.level.text}: {res.fit_error}")
+        orb = await orbitals_async(session, species, level, at_minimum=True, multiplicity=res.multiplicity, grid=grid,
+                                   base=res)
+        return res, orb
+
+    with open_session(store, workers, basis_size(species, level), progress) as session:
+        res, orb = run_sync(both(session))
     f = res.fit
     c = f.constants
     levels = tuple(g * HARTREE_CM1 for g in f.levels.energies) if f.levels is not None else ()
-    orb = orbitals(res.species, res.level, at_minimum=True, multiplicity=res.multiplicity, grid=grid, store=store, base=res)
     g_el, g_why = degeneracy_from_orbitals(orb.analysis, res.multiplicity)
     vals = {
         "re": f.local.re,
@@ -170,6 +179,8 @@ def build_sheet(
     dhf298_kj_per_mol: float | None = None,
     polynomial: str = "nasa7",
     t_grid=DEFAULT_T_GRID,
+    workers: int | None = None,
+    progress=None,
 ) -> Sheet:
     """Build the parameter sheet of one species (see the module docstring)."""
     from . import __version__
@@ -190,7 +201,8 @@ def build_sheet(
         if level is None:
             raise InputError("a computed sheet needs a level of theory (--level)")
         sp, lv, grid = resolve_inputs(sp, level, grid, multiplicity, None, points)
-        cvals, cprov, levels_cm1, cw, _res = _computed_constants(sp, lv, multiplicity, grid, store, isotopes, points)
+        cvals, cprov, levels_cm1, cw, _res = _computed_constants(sp, lv, multiplicity, grid, store, isotopes, workers,
+                                                                 progress)
         vals.update(cvals)
         field_sources.update({k: "computed" for k, v in cvals.items() if v is not None})
         prov.update(cprov)

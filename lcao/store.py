@@ -3,8 +3,10 @@
 One row per computed point, keyed by everything that determines it: species,
 charge, multiplicity, level (method, basis, d shells), protocol version, the
 sweep it belongs to and the distance (in units of 1e-8 bohr). Each row keeps
-the converged density matrix (raw float64 bytes, never pickle), so a resumed
-sweep warm-starts exactly as the uninterrupted one would have.
+the method's warm start (named arrays as raw float64 bytes, never pickle) and
+its energy components, so a resumed sweep warm-starts exactly as the
+uninterrupted one would have. Only the process that started a run writes
+the store; workers hand their results back to it.
 
 Rows are committed one at a time in WAL mode: a run killed at any moment
 loses nothing it finished, and a rerun computes only what is missing. Writers
@@ -24,7 +26,10 @@ import numpy as np
 
 from .errors import StoreError
 
-SCHEMA_VERSION = 1
+#: 2: per point and atom, the method's energy components and a warm start of named arrays (schema 1
+#: kept one density matrix; such stores are upgraded in place when opened for writing, and read as
+#: they are otherwise: their density is the warm start of Hartree-Fock points)
+SCHEMA_VERSION = 2
 #: Version of the scan protocol; bump when a change alters computed points.
 PROTOCOL_VERSION = 1
 DEFAULT_STORE_NAME = "lcao-store.sqlite"
@@ -36,16 +41,24 @@ CREATE TABLE IF NOT EXISTS points (
     level TEXT NOT NULL, protocol INTEGER NOT NULL, sweep TEXT NOT NULL, r_key INTEGER NOT NULL,
     r_bohr REAL NOT NULL, energy REAL, converged INTEGER NOT NULL, cycles INTEGER NOT NULL,
     s2 REAL, rescue TEXT, stability TEXT, reason TEXT, extra TEXT,
-    dm_shape TEXT NOT NULL, dm BLOB NOT NULL, created TEXT NOT NULL,
+    dm_shape TEXT NOT NULL, dm BLOB NOT NULL, created TEXT NOT NULL, components TEXT, warm_layout TEXT,
     PRIMARY KEY (species, charge, multiplicity, level, protocol, sweep, r_key)
 );
 CREATE TABLE IF NOT EXISTS atoms (
     symbol TEXT NOT NULL, charge INTEGER NOT NULL, spin INTEGER NOT NULL,
     level TEXT NOT NULL, protocol INTEGER NOT NULL,
     energy REAL, converged INTEGER NOT NULL, dm_shape TEXT NOT NULL, dm BLOB NOT NULL, created TEXT NOT NULL,
+    components TEXT, warm_layout TEXT,
     PRIMARY KEY (symbol, charge, spin, level, protocol)
 );
 """
+#: the statements that upgrade a schema-1 store to schema 2 (table, column, statement)
+_UPGRADE_TO_2 = (
+    ("points", "components", "ALTER TABLE points ADD COLUMN components TEXT"),
+    ("points", "warm_layout", "ALTER TABLE points ADD COLUMN warm_layout TEXT"),
+    ("atoms", "components", "ALTER TABLE atoms ADD COLUMN components TEXT"),
+    ("atoms", "warm_layout", "ALTER TABLE atoms ADD COLUMN warm_layout TEXT"),
+)
 
 
 def r_key(r_bohr: float) -> int:
@@ -53,31 +66,38 @@ def r_key(r_bohr: float) -> int:
     return int(round(float(r_bohr) * 1e8))
 
 
-@dataclass(frozen=True)
-class StoredPoint:
-    """A point as kept in the store (see :class:`lcao.scan.scf.Solution`)."""
-
-    r_bohr: float
-    energy: float
-    converged: bool
-    cycles: int
-    s2: float | None
-    rescue: str
-    stability: str
-    reason: str | None
-    extra: dict
-    dm: np.ndarray = field(repr=False, compare=False)
-    #: (mo_energy, mo_coeff, mo_occ) of a point computed in this run; never written to the file
-    orbitals: tuple | None = field(default=None, repr=False, compare=False)
+def pack_warm(warm: dict) -> tuple[str, bytes, str]:
+    """(total shape, bytes, layout) of a warm start: its arrays as float64, one after another."""
+    layout, parts = [], []
+    for name, arr in warm.items():
+        a = np.ascontiguousarray(arr, dtype=np.float64)
+        layout.append([name, list(a.shape)])
+        parts.append(a.tobytes())
+    blob = b"".join(parts)
+    return json.dumps([len(blob) // 8]), blob, json.dumps(layout)
 
 
-def _pack(dm) -> tuple[str, bytes]:
-    a = np.ascontiguousarray(dm, dtype=np.float64)
-    return json.dumps(list(a.shape)), a.tobytes()
+def unpack_warm(shape: str, blob: bytes, layout: str | None) -> dict:
+    """The warm start of a row; a schema-1 row (no layout) holds one density matrix."""
+    flat = np.frombuffer(blob, dtype=np.float64)
+    if layout is None:
+        return {"dm": flat.reshape(json.loads(shape)).copy()}
+    out, at = {}, 0
+    for name, dims in json.loads(layout):
+        size = int(np.prod(dims)) if dims else 1
+        out[name] = flat[at:at + size].reshape(dims).copy()
+        at += size
+    return out
 
 
-def _unpack(shape: str, blob: bytes) -> np.ndarray:
-    return np.frombuffer(blob, dtype=np.float64).reshape(json.loads(shape)).copy()
+def _extra(point) -> dict:
+    return {"unstable_towards": point.unstable_towards} if point.unstable_towards else {}
+
+
+def _unstable_towards(extra: dict) -> str | None:
+    if extra.get("unstable_towards"):
+        return extra["unstable_towards"]
+    return "unrestricted" if extra.get("uhf_unstable") else None  # schema-1 rows
 
 
 def _now() -> str:
@@ -85,7 +105,7 @@ def _now() -> str:
 
 
 def point_key(species, multiplicity, level, sweep, r_bohr) -> tuple:
-    """The key of a point: in the store, in a worker's own points and in the orbital cache."""
+    """The key of a point in the store."""
     return (species.label, species.charge, multiplicity, level.key(), PROTOCOL_VERSION, sweep, r_key(r_bohr))
 
 
@@ -122,6 +142,7 @@ class Store:
         tables = {r[0] for r in c.execute("SELECT name FROM sqlite_master WHERE type='table'")}
         if tables and "meta" not in tables:
             raise StoreError(f"{self.path} is an SQLite file but not an lcao store (tables: {', '.join(sorted(tables))})")
+        version = SCHEMA_VERSION
         if "meta" in tables:
             row = c.execute("SELECT value FROM meta WHERE key='schema_version'").fetchone()
             if row is None:
@@ -130,8 +151,9 @@ class Store:
             if version > SCHEMA_VERSION:
                 raise StoreError(
                     f"store {self.path} was written by a newer lcao (schema {version});"
-                    f" this lcao reads schema {SCHEMA_VERSION} and older"
+                    f" this lcao reads schema {SCHEMA_VERSION} and older: upgrade lcao or use another store"
                 )
+        self.schema = version
         if self.read_only:
             return
         c.execute("PRAGMA journal_mode=WAL")
@@ -141,6 +163,14 @@ class Store:
             for stmt in _SCHEMA.strip().split(";"):
                 if stmt.strip():
                     c.execute(stmt)
+            row = c.execute("SELECT value FROM meta WHERE key='schema_version'").fetchone()
+            if row is not None and int(row[0]) < SCHEMA_VERSION:  # schema 1: add the columns of 2
+                have = {"points": {r[1] for r in c.execute("PRAGMA table_info(points)")},
+                        "atoms": {r[1] for r in c.execute("PRAGMA table_info(atoms)")}}
+                for table, column, statement in _UPGRADE_TO_2:
+                    if column not in have[table]:
+                        c.execute(statement)
+                c.execute("UPDATE meta SET value=? WHERE key='schema_version'", (str(SCHEMA_VERSION),))
             c.execute(
                 "INSERT OR IGNORE INTO meta(key, value) VALUES ('schema_version', ?)", (str(SCHEMA_VERSION),)
             )
@@ -149,6 +179,11 @@ class Store:
         except Exception:
             c.execute("ROLLBACK")
             raise
+        self.schema = SCHEMA_VERSION
+
+    def _new_columns(self) -> str:
+        """The schema-2 columns, or NULLs in their place for a schema-1 store opened read-only."""
+        return "components, warm_layout" if self.schema >= 2 else "NULL, NULL"
 
     def close(self):
         self.conn.close()
@@ -161,44 +196,43 @@ class Store:
 
     # points -----------------------------------------------------------------
 
-    def get_point(self, species, multiplicity, level, sweep, r_bohr) -> StoredPoint | None:
+    def get_point(self, species, multiplicity, level, sweep, r_bohr):
+        """The stored :class:`lcao.methods.PointResult`, or None."""
+        from .methods.base import PointResult
+
         key = point_key(species, multiplicity, level, sweep, r_bohr)
         if not self.reuse and key not in self._written:
             return None
         row = self.conn.execute(
-            "SELECT r_bohr, energy, converged, cycles, s2, rescue, stability, reason, extra, dm_shape, dm"
+            "SELECT r_bohr, energy, converged, cycles, s2, rescue, stability, reason, extra, dm_shape, dm, "
+            + self._new_columns() +
             " FROM points WHERE species=? AND charge=? AND multiplicity=? AND level=? AND protocol=?"
             " AND sweep=? AND r_key=?",
             key,
         ).fetchone()
         if row is None:
             return None
-        return StoredPoint(
-            row[0],
-            float("nan") if row[1] is None else row[1],
-            bool(row[2]),
-            row[3],
-            row[4],
-            row[5],
-            row[6],
-            row[7],
-            json.loads(row[8]) if row[8] else {},
-            _unpack(row[9], row[10]),
-        )
+        energy = float("nan") if row[1] is None else row[1]
+        extra = json.loads(row[8]) if row[8] else {}
+        components = json.loads(row[11]) if row[11] else {}
+        return PointResult(row[0], energy, bool(row[2]), row[3], row[4], row[5], row[6], row[7], components,
+                           unpack_warm(row[9], row[10], row[12]), _unstable_towards(extra))
 
-    def put_point(self, species, multiplicity, level, sweep, point: StoredPoint) -> bool:
-        """Store one point (committed at once). Returns False if it was already there."""
+    def put_point(self, species, multiplicity, level, sweep, point) -> bool:
+        """Store one :class:`lcao.methods.PointResult` (committed at once). Returns False if it was already there."""
         if self.read_only:
             raise StoreError(f"store {self.path} is open read-only")
-        shape, blob = _pack(point.dm)
+        shape, blob, layout = pack_warm(point.warm)
         energy = None if not np.isfinite(point.energy) else float(point.energy)
         key = point_key(species, multiplicity, level, sweep, point.r_bohr)
         verb = "INSERT OR IGNORE" if self.reuse else "INSERT OR REPLACE"
         self._written.add(key)
+        components = {k: (float(v) if np.isfinite(v) else None) for k, v in point.components.items()}
         cur = self.conn.execute(
             f"{verb} INTO points(species, charge, multiplicity, level, protocol, sweep, r_key,"
-            " r_bohr, energy, converged, cycles, s2, rescue, stability, reason, extra, dm_shape, dm, created)"
-            " VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?,?,?,?,?,?)",
+            " r_bohr, energy, converged, cycles, s2, rescue, stability, reason, extra, dm_shape, dm, created,"
+            " components, warm_layout)"
+            " VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?,?,?,?,?,?,?,?)",
             key
             + (
                 float(point.r_bohr),
@@ -209,10 +243,12 @@ class Store:
                 point.rescue,
                 point.stability,
                 point.reason,
-                json.dumps(point.extra, sort_keys=True),
+                json.dumps(_extra(point), sort_keys=True),
                 shape,
                 blob,
                 _now(),
+                json.dumps(components, sort_keys=True),
+                layout,
             ),
         )
         return cur.rowcount == 1
@@ -232,27 +268,29 @@ class Store:
 
     # atoms ------------------------------------------------------------------
     def get_atom(self, symbol, charge, spin, level):
-        from .atoms import AtomState
+        """The stored :class:`lcao.methods.AtomResult`, or None."""
+        from .methods.base import AtomResult
 
         if not self.reuse:
             return None
         row = self.conn.execute(
-            "SELECT energy, converged, dm_shape, dm FROM atoms WHERE symbol=? AND charge=? AND spin=?"
-            " AND level=? AND protocol=?",
+            "SELECT energy, converged, dm_shape, dm, " + self._new_columns() + " FROM atoms WHERE symbol=?"
+            " AND charge=? AND spin=? AND level=? AND protocol=?",
             (symbol, charge, spin, level.key(), PROTOCOL_VERSION),
         ).fetchone()
         if row is None:
             return None
-        return AtomState(symbol, charge, spin, row[0], bool(row[1]), _unpack(row[2], row[3]))
+        return AtomResult(symbol, charge, spin, row[0], bool(row[1]), unpack_warm(row[2], row[3], row[5]),
+                          json.loads(row[4]) if row[4] else {})
 
     def put_atom(self, state, level) -> None:
         if self.read_only:
             return
-        shape, blob = _pack(state.dm)
+        shape, blob, layout = pack_warm(state.warm)
         verb = "INSERT OR IGNORE" if self.reuse else "INSERT OR REPLACE"
         self.conn.execute(
-            f"{verb} INTO atoms(symbol, charge, spin, level, protocol, energy, converged, dm_shape, dm, created)"
-            " VALUES (?,?,?,?,?,?,?,?,?,?)",
+            f"{verb} INTO atoms(symbol, charge, spin, level, protocol, energy, converged, dm_shape, dm, created,"
+            " components, warm_layout) VALUES (?,?,?,?,?,?,?,?,?,?,?,?)",
             (
                 state.symbol,
                 state.charge,
@@ -264,6 +302,8 @@ class Store:
                 shape,
                 blob,
                 _now(),
+                json.dumps(state.components, sort_keys=True),
+                layout,
             ),
         )
 
@@ -302,5 +342,6 @@ class MemoryStore(Store):
         self.read_only = False
         self.reuse = True
         self._written = set()
+        self.schema = SCHEMA_VERSION
         self.conn = sqlite3.connect(":memory:", isolation_level=None)
         self._check_and_init()

@@ -5,7 +5,7 @@ checked; best of two runs): one thread against two took 0.033 against 0.097 s pe
 cc-pVDZ (28 functions), 0.063 against 0.161 in 6-311G* (36), 0.126 against 0.176 in aug-cc-pVDZ
 (46) and 0.388 against 0.405 in cc-pVTZ (60). Idle BLAS pools spinning next to PySCF also slowed
 small-basis curves by up to 2x. So every basis up to cc-pVTZ size runs on one thread per process,
-and a second core is used by a second process (forked sweeps, series workers). From
+and a second core is used by a second process (the workers of :mod:`lcao.execute`). From
 :data:`THREADED_FROM_NAO` functions a process's integrals grow past 40 MB per geometry and a
 second process would double them, so larger bases take the threads instead.
 """
@@ -20,26 +20,9 @@ import os
 THREADED_FROM_NAO = 80
 
 
-_BUDGET: int | None = None
-
-
 def cores() -> int:
+    """Cores of this machine (the default worker count)."""
     return max(1, os.cpu_count() or 1)
-
-
-def set_budget(n: int | None) -> None:
-    """Cores this process may use (a worker of a pool gets its share; None: every core)."""
-    global _BUDGET
-    _BUDGET = None if n is None else max(1, int(n))
-
-
-def budget() -> int:
-    return _BUDGET if _BUDGET is not None else cores()
-
-
-def threads_for(nao: int) -> int:
-    """Threads this process should use for a molecule of ``nao`` basis functions."""
-    return budget() if nao >= THREADED_FROM_NAO else 1
 
 
 @contextlib.contextmanager

@@ -6,11 +6,9 @@ import numpy as np
 import pytest
 
 import lcao
-from lcao.atoms import AtomCache
 from lcao.fit.local import local_fit
 from lcao.levels import parse_level
 from lcao.scan.grid import range_grid
-from lcao.store import MemoryStore
 from lcao.units import bohr_to_angstrom
 
 # Equilibrium distances (angstrom) at HF/STO-3G and HF/6-31G, NIST Computational
@@ -48,7 +46,8 @@ def test_f2_631g_minimum_matches_analytic_gradient():
     against the root of PySCF's analytic RHF gradient (an independent code path)."""
     from scipy.optimize import brentq
 
-    from lcao.scan.scf import build_molecule, solve
+    from lcao.methods.molecule import build_molecule
+    from lcao.methods.scf import solve
 
     level = parse_level("HF/6-31G")
 
@@ -63,8 +62,10 @@ def test_f2_631g_minimum_matches_analytic_gradient():
 
 
 def atom_energy(symbol, basis, spin):
-    cache = AtomCache(parse_level(f"HF/{basis}"), MemoryStore())
-    return cache.get(symbol, 0, spin).energy_hartree
+    from lcao.methods import method_for
+
+    level = parse_level(f"HF/{basis}")
+    return method_for(level).atom(symbol, 0, spin, level).energy_hartree
 
 
 @pytest.mark.parametrize("species,symbol,spin", [("H2", "H", 1), ("N2", "N", 3)])

@@ -7,6 +7,7 @@ import pytest
 
 import lcao
 from lcao.errors import FitError
+from lcao.export.fit_fields import fit_document
 from lcao.fit.local import dunham_constants, local_fit
 from lcao.fit.morse import fit_morse, morse, morse_jacobian, morse_levels
 from lcao.fit.vibration import solve_levels
@@ -119,7 +120,8 @@ def hessian_wavenumber(species, re_bohr, iso):
     from pyscf.hessian import rhf as rhf_hess
 
     from lcao.levels import parse_level
-    from lcao.scan.scf import build_molecule, solve
+    from lcao.methods.molecule import build_molecule
+    from lcao.methods.scf import solve
 
     sp = lcao.parse_species(species)
     sol = solve(build_molecule(sp.atoms, re_bohr, parse_level("HF/6-31G"), 0, 0), "RHF", follow_stability=False)
@@ -134,19 +136,19 @@ def test_harmonic_wavenumber_matches_analytic_hessian(species, centre):
     fit = res.fit
     assert fit is not None
     we_hess = hessian_wavenumber(species, fit.local.re, fit.isotopes)
-    assert fit.as_dict()["we_cm1"] == pytest.approx(we_hess, rel=0.005)
+    assert fit_document(fit)["we_cm1"] == pytest.approx(we_hess, rel=0.005)
 
 
 def test_f2_unbound_at_631g_weakly_bound_at_sto3g():
     # What Hartree-Fock gives (checked here, not a handbook value): F2 at HF/6-31G
     # lies about 2 eV above two UHF fluorine atoms; at HF/STO-3G it is weakly bound.
     res = lcao.curve("F2", "HF/6-31G", range_grid(1.1, 4.0, 24), multiplicity=1)
-    d = res.fit.as_dict()
+    d = fit_document(res.fit)
     assert d["bound"] is False and d["binding"] == "not bound at this level"
     assert 1.5 < d["minimum_above_limit_ev"] < 2.5
     assert d["morse"] is None and d["de_ev"] is None
     sto = lcao.curve("F2", "HF/STO-3G", range_grid(1.0, 4.0, 24), multiplicity=1)
-    ds = sto.fit.as_dict()
+    ds = fit_document(sto.fit)
     assert ds["bound"] is True and 0 < ds["de_ev"] < 1.5
 
 
@@ -155,7 +157,7 @@ def test_h2_morse_window_ends_at_the_kink():
     # window that ends where UHF splits from RHF (measured in issue 4: r_e by ~0.03 A,
     # omega_e by ~600 cm-1); the automatic window must stop at the split.
     res = lcao.curve("H2", "HF/6-31G", range_grid(0.45, 4.0, 40))
-    m = res.fit.as_dict()["morse"]
+    m = fit_document(res.fit)["morse"]
     assert "splits" in m["window_end"]
     a, b = res.scan.instability
     assert m["window_angstrom"][1] <= bohr_to_angstrom(b) + 0.1
@@ -170,7 +172,7 @@ def test_h2_morse_window_ends_at_the_kink():
 
 def test_curve_fit_block_has_the_named_fields():
     res = lcao.curve("CO", "HF/STO-3G", range_grid(0.9, 3.5, 30), multiplicity=1)
-    d = res.fit.as_dict()
+    d = fit_document(res.fit)
     for key in ("re_angstrom", "we_cm1", "wexe_cm1", "be_cm1", "de_ev", "d0_ev"):
         assert isinstance(d[key], float)
     for key in ("de_ev", "a_per_angstrom", "re_angstrom", "window_angstrom"):

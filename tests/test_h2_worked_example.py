@@ -6,7 +6,8 @@ import numpy as np
 import pytest
 
 from lcao.levels import parse_level
-from lcao.scan.scf import build_molecule, solve
+from lcao.methods.molecule import build_molecule
+from lcao.methods.scf import solve
 
 
 def test_szabo_ostlund_h2_sto3g():

@@ -7,14 +7,29 @@ from lcao.levels import check_basis_covers, parse_level
 
 
 def test_parse_and_reference_rules():
+    from lcao.methods import method_for
+    from lcao.species import parse_species
+
     lv = parse_level("HF/STO-3G")
     assert lv.method == "HF" and lv.basis == "STO-3G"
-    # 'HF' means RHF for closed-shell singlets and UHF otherwise (common practice)
-    assert lv.resolved_reference(1) == "RHF" and lv.resolved_reference(2) == "UHF"
-    assert parse_level("uhf/6-31G").resolved_reference(1) == "UHF"
-    assert parse_level("ROHF/6-31G").resolved_reference(3) == "ROHF"
+    hf = method_for(lv)
+
+    def primary(level, mult):
+        plan = hf.state_plan(level, mult)
+        return plan.reference[plan.primary]
+
+    # 'HF' means RHF for closed-shell singlets, checked and followed into UHF past the instability,
+    # and UHF otherwise (common practice)
+    assert primary(lv, 1) == "RHF" and primary(lv, 2) == "UHF"
+    assert hf.state_plan(lv, 1).secondary == "unrestricted"
+    assert primary(parse_level("uhf/6-31G"), 1) == "UHF"
+    assert primary(parse_level("ROHF/6-31G"), 3) == "ROHF"
+    rhf = parse_level("RHF/6-31G")
+    assert hf.state_plan(rhf, 1).instability_check and hf.state_plan(rhf, 1).secondary is None
     with pytest.raises(LevelError, match="multiplicity is 3"):
-        parse_level("RHF/6-31G").resolved_reference(3)
+        hf.check(rhf, parse_species("O2"), 3)
+    with pytest.raises(LevelError, match="multiplicity is 2"):
+        hf.check(rhf, parse_species("NO"), None)
 
 
 def test_d_shell_convention():

@@ -6,6 +6,7 @@ import pytest
 
 from lcao.cli import main
 from lcao.data import handbook_row
+from lcao.export.series_files import member_values, signed_errors
 from lcao.levels import parse_level
 from lcao.series import by_electron_count, members_from, run_series
 from lcao.store import Store
@@ -30,7 +31,7 @@ def test_14_electron_series_matches_cccbdb_and_handbook(series14):
     # NIST CCCBDB HF/6-31G bond lengths (the values the issue quotes); the CCCBDB entries for CN-,
     # NO+ and BF are not known to us here and are not checked
     for sp, ref in (("N2", 1.089), ("CO", 1.131)):
-        assert abs(by[sp].values["re_angstrom"] - ref) < 0.002
+        assert abs(member_values(by[sp])["re_angstrom"] - ref) < 0.002
     for r in rows:
         hb = handbook_row(r.species)
         if hb is None:
@@ -38,10 +39,10 @@ def test_14_electron_series_matches_cccbdb_and_handbook(series14):
             continue
         for key in ("re_angstrom", "we_cm1", "d0_ev", "ground_term"):
             assert r.handbook[key] == hb[key]
-        if hb.get("re_angstrom") is not None and hb["multiplicity"] == r.values["multiplicity"]:
-            assert r.errors["re_angstrom"] == pytest.approx(r.values["re_angstrom"] - hb["re_angstrom"])
+        if hb.get("re_angstrom") is not None and hb["multiplicity"] == member_values(r)["multiplicity"]:
+            assert signed_errors(r)["re_angstrom"] == pytest.approx(member_values(r)["re_angstrom"] - hb["re_angstrom"])
     # isoelectronic with N2: formal triple bonds, closed shells (common practice)
-    assert all(r.values["bond_order_mo_count"] == 3.0 and r.values["magnetism"] == "diamagnetic" for r in rows)
+    assert all(member_values(r)["bond_order_mo_count"] == 3.0 and member_values(r)["magnetism"] == "diamagnetic" for r in rows)
 
 
 def test_rerunning_a_series_computes_nothing(series14):
@@ -49,7 +50,7 @@ def test_rerunning_a_series_computes_nothing(series14):
     with Store(path) as st:
         again = run_series(members_from(SERIES_14, [parse_level("HF/6-31G")], points=16), st)
         assert st.count_points() == n
-    assert [r.values["re_angstrom"] for r in again] == [r.values["re_angstrom"] for r in rows]
+    assert [member_values(r)["re_angstrom"] for r in again] == [member_values(r)["re_angstrom"] for r in rows]
 
 
 def test_n2_ladder_shows_the_hartree_fock_basis_trend(tmp_path):
@@ -61,7 +62,7 @@ def test_n2_ladder_shows_the_hartree_fock_basis_trend(tmp_path):
     assert levels[2].cartesian
     with Store(tmp_path / "s.sqlite") as st:
         rows = run_series(members_from(["N2"], levels, points=16), st)
-    re_ = [r.values["re_angstrom"] for r in rows]
+    re_ = [member_values(r)["re_angstrom"] for r in rows]
     assert re_[0] > re_[1] > re_[2]
     assert re_[0] > 1.0977 > re_[1] > re_[2]
     for got, ref in zip(re_, (1.134, 1.089, 1.078)):
@@ -139,38 +140,43 @@ def test_series_command_writes_table_and_files(tmp_path, capsys):
 
 
 def test_members_on_two_workers_match_one_and_store_each_point_once(tmp_path):
-    from lcao.parallel import run_parallel
-
     members = members_from(["H2", "LiH"], [parse_level("HF/STO-3G")], points=12)
     with Store(tmp_path / "one.sqlite") as st:
-        serial = run_series(members, st)
+        serial = run_series(members, st, workers=1)
         n_serial = st.count_points()
-    rows = run_parallel(members, str(tmp_path / "two.sqlite"), 2)
     with Store(tmp_path / "two.sqlite") as st:
+        rows = run_series(members, st, workers=2)
         assert st.count_points() == n_serial
     for a, b in zip(serial, rows):
         assert a.species == b.species
-        assert a.values["re_angstrom"] == pytest.approx(b.values["re_angstrom"], abs=1e-9)
-    again = run_parallel(members, str(tmp_path / "two.sqlite"), 2)  # everything reused
+        assert member_values(a)["re_angstrom"] == pytest.approx(member_values(b)["re_angstrom"], abs=1e-9)
     with Store(tmp_path / "two.sqlite") as st:
+        again = run_series(members, st, workers=2)  # everything reused
         assert st.count_points() == n_serial
-    assert [r.values["we_cm1"] for r in again] == pytest.approx([r.values["we_cm1"] for r in rows], abs=1e-9)
+    assert [member_values(r)["we_cm1"] for r in again] == pytest.approx([member_values(r)["we_cm1"] for r in rows], abs=1e-9)
 
 
 def test_large_basis_members_run_here_on_threads_and_the_rest_on_processes(tmp_path, monkeypatch, capsys):
     # with the threshold lowered to 10 functions, N2/STO-3G (10) counts as large: it runs in this
     # process (on threads), H2 and HeH+ (2 each) on the worker processes; the rows keep their order
-    from lcao import series, threads
+    from lcao import execute, threads
 
     monkeypatch.setattr(threads, "THREADED_FROM_NAO", 10)
-    here = []
-    real = series.run_series
-    monkeypatch.setattr(series, "run_series", lambda ms, st, progress=None: here.extend(m.species.label for m in ms) or real(ms, st, progress))
+    made = []
+    real = execute.make_executor
+
+    def recording(workers=None, basis_size=0, tasks=None):
+        ex = real(workers, basis_size, tasks)
+        made.append((basis_size, type(ex).__name__, getattr(ex, "threads", None)))
+        return ex
+
+    monkeypatch.setattr(execute, "make_executor", recording)
     out = tmp_path / "o"
     code = main(["series", "H2", "N2", "HeH+", "--level", "HF/STO-3G", "--points", "12", "--workers", "2", "-q",
                  "--no-plots", "--store", str(tmp_path / "s.sqlite"), "--out", str(out)])
     assert code == 0, capsys.readouterr().err
-    assert here == ["N2"]
+    # the small members together on worker processes, then N2 alone here on both cores as threads
+    assert made == [(0, "LocalProcessExecutor", 1), (10, "SerialExecutor", 2)]
     doc = json.loads((out / "series.json").read_text())
     assert [r["species"] for r in doc["rows"]] == ["H2", "N2", "HeH+"]
     assert all(r["status"] == "ok" for r in doc["rows"])

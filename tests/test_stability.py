@@ -11,8 +11,9 @@ import numpy as np
 import pytest
 
 from lcao.levels import parse_level
-from lcao.scan import stability as dense
-from lcao.scan.scf import build_molecule, make_scf, solve, unstable_towards_uhf
+from lcao.methods import stability as dense
+from lcao.methods.molecule import build_molecule
+from lcao.methods.scf import make_scf, solve, unstable_towards_uhf
 
 LEVEL = parse_level("HF/6-31G")
 
@@ -110,3 +111,34 @@ def test_davidson_route_decides_as_pyscf_stability(r):
         ]
     for (e, _v), pyscf_stable in cases:
         assert (e is None) == pyscf_stable
+
+
+def test_davidson_triplet_product_equals_the_dense_triplet_hessian():
+    # our Davidson route's RHF -> UHF Hessian-vector product (on PySCF's public triplet response)
+    # applied to every unit vector gives the dense triplet block, element by element
+    mf = _converged(("N", "N"), 2.6, 0, 0, "RHF")
+    _, triplet = dense.rhf_hessians(mf.mo_coeff, mf.mo_occ, _fock(mf), mf._eri)
+    products = []
+    real = dense._davidson
+
+    def capture(hx, hdiag, x0):
+        products.extend(hx(x) for x in np.eye(len(hdiag)))
+        return real(hx, hdiag, x0)
+
+    dense._davidson = capture
+    try:
+        dense.davidson_rhf_to_uhf(mf)
+    finally:
+        dense._davidson = real
+    assert np.max(np.abs(np.array(products) - triplet)) < 1e-9
+
+
+def test_orbital_rotation_equals_pyscfs():
+    # the reference is PySCF's own rotation along a stability mode (pyscf.scf.stability, 2.14)
+    from pyscf.scf import stability
+
+    mf = _converged(("N", "N"), 3.0, 0, 0, "RHF")
+    _, triplet = dense.rhf_hessians(mf.mo_coeff, mf.mo_occ, _fock(mf), mf._eri)
+    _, v = dense.lowest_mode(triplet)
+    assert np.max(np.abs(dense.rotate_orbitals(mf.mo_coeff, mf.mo_occ, v)
+                         - stability._rotate_mo(mf.mo_coeff, mf.mo_occ, v))) < 1e-14

@@ -33,7 +33,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..scan.scf import ao_labels
+from ..methods.molecule import ao_labels
 
 DELTA = 1e-3
 

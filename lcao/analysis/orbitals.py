@@ -10,8 +10,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..scan.scf import ao_labels
-from ..scan.scf import overlap as ao_overlap
+from ..methods.molecule import ao_labels
+from ..methods.molecule import overlap as ao_overlap
 from .character import homonuclear_class, homonuclear_name, period, prototypes, valence_slots
 from .populations import atom_slices, mayer_bond_order, mo_compositions, mo_overlap_populations, mulliken_overlap_population
 from .symmetry import kind_label, symmetry_basis, symmetry_weights_all
@@ -334,54 +334,3 @@ def valence_overlaps(mol, s) -> dict:
     out["functions"] = {k: v for k, v in (("A s", sa), ("B s", sb), ("A p", pza), ("B p", pzb)) if v is not None}
     out["functions"] = {k: labels[v].strip() for k, v in out["functions"].items()}
     return out
-
-
-
-#: largest change of the density on rebuilding a stored point's orbitals before it is re-converged
-REBUILD_TOL = 1e-5
-
-
-def _fock_from_orbitals(s, orbitals):
-    """F = S C diag(e) C^T S: the Fock matrix whose eigenvectors are the given canonical orbitals."""
-    e, c, _ = orbitals
-    if np.asarray(c).ndim == 3:
-        return np.array([s @ (c[k] * e[k]) @ c[k].T @ s for k in (0, 1)])
-    return s @ (c * e) @ c.T @ s
-
-
-def analyse_stored(species, multiplicity, level, reference, r_bohr, dm, orbitals=None) -> OrbitalAnalysis:
-    """Analyse a stored point: its orbitals as computed in this run (``orbitals``, see
-    :class:`lcao.store.StoredPoint`) or else from one diagonalisation of the Fock matrix of its
-    converged density (re-converged only if that does not reproduce the density)."""
-    from ..scan.scf import build_molecule, make_scf, solve
-
-    mol = build_molecule(species.atoms, r_bohr, level, species.charge, multiplicity - 1)
-    dm = np.asarray(dm)
-    if reference == "RHF" and dm.ndim == 3:
-        dm = dm.sum(axis=0)
-    kept = orbitals is not None and np.asarray(orbitals[1]).ndim == (3 if reference == "UHF" else 2)
-    mf = make_scf(mol, reference, two_electron=not kept)  # kept orbitals need no two-electron integrals
-    if kept:
-        mf.mo_energy, mf.mo_coeff, mf.mo_occ = orbitals
-        fock = _fock_from_orbitals(mf.get_ovlp(), orbitals)
-    else:
-        fock = mf.get_fock(dm=dm)
-        mf.mo_energy, mf.mo_coeff = mf.eig(fock, mf.get_ovlp())
-        mf.mo_occ = mf.get_occ(mf.mo_energy, mf.mo_coeff)
-    if np.max(np.abs(np.asarray(mf.make_rdm1()) - dm)) > REBUILD_TOL:
-        sol = solve(mol, reference, dm, follow_stability=False)
-        if not sol.converged:
-            from ..errors import CalculationError
-
-            raise CalculationError(f"the stored point at {r_bohr:.4f} bohr did not re-converge for analysis")
-        return analyse(sol.scf)
-    # E = 1/2 tr[P (h + F)] per spin, from the Fock matrix at hand (no second Coulomb/exchange build)
-    h = mf.get_hcore()
-    fk = np.asarray(fock)
-    if dm.ndim == 3:
-        e_el = 0.5 * sum(float(np.einsum("ij,ji->", dm[k], h + fk[k])) for k in (0, 1))
-    else:
-        e_el = 0.5 * float(np.einsum("ij,ji->", dm, h + fk))
-    mf.e_tot = e_el + mol.energy_nuc()
-    mf.converged = True
-    return analyse(mf, fock=fock)

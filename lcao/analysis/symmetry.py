@@ -16,7 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..scan.scf import overlap
+from ..methods.molecule import overlap
 
 PURE = 0.95
 LAMBDA_NAMES = {0: "sigma", 1: "pi", 2: "delta", 3: "phi", 4: "gamma"}
@@ -52,20 +52,22 @@ def _irrep_kind(name: str) -> tuple[int, str | None]:
     return lam, (m.group(3) or None)
 
 
-_CACHE: dict = {}
-
-
 def symmetry_basis(mol) -> SymmetryBasis:
     """The adapted basis of ``mol`` with the metric of its current overlap matrix.
 
     The adapted combinations of a linear molecule do not depend on the bond
     distance, so they are built once per (atoms, basis, d shells) from a
-    symmetric copy and cached; the projector metric uses this geometry's overlap.
+    symmetric copy and kept in the process's caches; the projector metric uses this geometry's overlap.
     """
+    from ..methods.cache import caches
+
     key = (mol.atom_symbol(0), mol.atom_symbol(1), str(mol.basis), bool(mol.cart), mol.nao)
-    if key not in _CACHE:
-        _CACHE[key] = _adapted_combinations(mol)
-    blocks, homo = _CACHE[key]
+    kept = caches().symmetry
+    got = kept.get(key)
+    if got is None:
+        got = _adapted_combinations(mol)
+        kept.put(key, got)
+    blocks, homo = got
     s = overlap(mol)
     return SymmetryBasis({k: (u, np.linalg.inv(u.T @ s @ u)) for k, u in blocks.items()}, homo)
 

@@ -55,19 +55,16 @@ def add_grid_options(p) -> None:
 
 def add_workers_option(p) -> None:
     p.add_argument("--workers", type=_int_arg("--workers"), metavar="N",
-                   help="processes for the independent sweeps of a curve (default: the CPU count; 1 computes"
+                   help="worker processes for the independent sweeps of a curve (default: the CPU count; 1 computes"
                         " everything in this process)")
 
 
 def apply_workers(args) -> None:
-    """Check ``--workers`` and cap the cores this run may use (lcao.threads)."""
-    from ..threads import set_budget
-
+    """Check ``--workers``."""
     if args.workers is not None and args.workers < 1:
         from ..errors import InputError
 
         raise InputError(f"--workers must be at least 1, got {args.workers}")
-    set_budget(args.workers)
 
 
 def add_store_options(p) -> None:
@@ -124,13 +121,13 @@ class Progress:
         if enabled and sys.stderr.isatty():
             from tqdm import tqdm
 
-            tqdm.monitor_interval = 0  # no monitor thread: sweeps may fork (lcao.scan.workers)
+            tqdm.monitor_interval = 0  # no monitor thread: worker processes are forked where no thread runs
             self.bar = tqdm(desc=label, unit="pt", file=sys.stderr, leave=False)
 
-    def __call__(self, sweep, r_bohr):
+    def __call__(self, label, points):
         if self.bar is not None:
-            self.bar.set_postfix_str(sweep, refresh=False)
-            self.bar.update(1)
+            self.bar.set_postfix_str(label, refresh=False)
+            self.bar.update(points)
 
     def close(self):
         if self.bar is not None:
@@ -182,9 +179,8 @@ def run(args) -> int:
     progress = Progress(not args.quiet, f"{species.label} {level.text}")
     try:
         with open_store(args) as store:
-            result = curve(
-                species, level, grid, multiplicity=args.multiplicity, store=store, isotopes=args.isotopes, progress=progress
-            )
+            result = curve(species, level, grid, multiplicity=args.multiplicity, store=store, isotopes=args.isotopes,
+                           progress=progress, workers=args.workers)
     finally:
         progress.close()
     paths = write_outputs(result, out)

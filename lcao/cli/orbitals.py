@@ -108,7 +108,8 @@ def run(args) -> int:
     try:
         with open_store(args) as store:
             res = orbitals(species, level, r, at_minimum=args.at_minimum, branch=args.branch,
-                           multiplicity=args.multiplicity, grid=grid, store=store)
+                           multiplicity=args.multiplicity, grid=grid, store=store, progress=progress,
+                           workers=args.workers)
     finally:
         progress.close()
     paths = write_outputs(res, out, ORBITAL_WRITERS)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import math
 import os
 import re
 import sys
@@ -35,52 +36,20 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
 
 def add_workers_option(p) -> None:
     p.add_argument("--workers", type=int, metavar="N",
-                   help="worker processes for the members (default: the CPU count; 1 runs everything in this process)")
-
-
-def _size(member) -> int:
-    """Basis functions of a member's molecule (0 when its basis lacks an element: it fails as a row)."""
-    from ..errors import LcaoError
-    from ..levels import check_basis_covers
-    from ..pipeline import basis_size
-
-    try:
-        check_basis_covers(member.level, member.species.atoms)
-        return basis_size(member.species, member.level)
-    except LcaoError:
-        return 0
+                   help="worker processes for the members' curves (default: the CPU count; 1 runs everything in"
+                        " this process)")
 
 
 def _members_run(members, store_path, args, progress):
-    """Run members in this process or on worker processes (one writer of the store either way)."""
+    """Run the members on one executor; only this process writes the store."""
     from ..errors import InputError
-    from ..parallel import default_workers, run_parallel
     from ..series import run_series
     from ..store import Store
 
-    from ..threads import THREADED_FROM_NAO, set_budget
-
-    workers = args.workers if args.workers is not None else default_workers()
-    if workers < 1:
-        raise InputError(f"--workers must be at least 1, got {workers}")
-    # large bases take the cores as threads, one member at a time, here; the rest go to processes
-    large = [i for i, m in enumerate(members) if _size(m) >= THREADED_FROM_NAO]
-    small = [i for i in range(len(members)) if i not in large]
-    rows = [None] * len(members)
-    set_budget(workers)  # --workers caps the processes (or threads): one member may fork its sweeps
-    if workers == 1 or len(small) <= 1:
-        todo = list(range(len(members)))
-    else:
-        got = run_parallel([members[i] for i in small], store_path, workers, reuse=not args.recompute,
-                           on_done=lambda m: progress(m.species.label, 0.0))
-        for i, row in zip(small, got):
-            rows[i] = row
-        todo = large
-    if todo:
-        with Store(store_path, reuse=not args.recompute) as store:
-            for i, row in zip(todo, run_series([members[i] for i in todo], store, progress)):
-                rows[i] = row
-    return tuple(rows)
+    if args.workers is not None and args.workers < 1:
+        raise InputError(f"--workers must be at least 1, got {args.workers}")
+    with Store(store_path, reuse=not args.recompute) as store:
+        return run_series(members, store, workers=args.workers, progress=progress)
 
 
 def add_run_arguments(p: argparse.ArgumentParser) -> None:
@@ -113,9 +82,39 @@ def write_series(rows, out: str, title: str, plots: bool) -> list[str]:
     return paths
 
 
-def _report(rows, title, paths) -> int:
-    from ..series import table_lines
+def table_lines(rows) -> list[str]:
+    """The table printed on stdout (computed, handbook and signed error side by side)."""
+    from ..export.series_files import member_values, signed_errors
 
+    head = (
+        f"{'species':8s} {'level':14s} {'mult':>4s} {'r_e/A':>8s} {'hb r_e':>7s} {'err':>7s} {'w_e/cm-1':>9s} {'hb w_e':>7s}"
+        f" {'D_e/eV':>7s} {'D_0/eV':>7s} {'hb D_0':>7s} {'BO(MO)':>6s} {'Mayer':>6s} {'unp':>3s}  magnetism / reason"
+    )
+    lines = [head]
+
+    def num(v, fmt):
+        width = int("".join(ch for ch in fmt.split(".")[0] if ch.isdigit()) or 0)
+        if isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v):
+            return format(v, fmt)
+        return "-".rjust(width)
+
+    for r in rows:
+        if r.status != "ok":
+            lines.append(f"{r.species:8s} {r.level:14s} {'':>4s} {'failed: ' + (r.reason or ''):s}")
+            continue
+        v, h = member_values(r), r.handbook
+        e = signed_errors(r, v)
+        lines.append(
+            f"{r.species:8s} {r.level:14s} {v.get('multiplicity', ''):>4} {num(v.get('re_angstrom'), '8.4f')} {num(h.get('re_angstrom'), '7.4f')}"
+            f" {num(e.get('re_angstrom'), '+7.4f')} {num(v.get('we_cm1'), '9.1f')} {num(h.get('we_cm1'), '7.1f')}"
+            f" {num(v.get('de_ev'), '7.3f') if v.get('bound') else 'unbound':>7s} {num(v.get('d0_ev'), '7.3f')} {num(h.get('d0_ev'), '7.3f')}"
+            f" {num(v.get('bond_order_mo_count'), '6.1f')} {num(v.get('bond_order_mayer'), '6.3f')} {v.get('unpaired_electrons', '-'):>3}"
+            f"  {v.get('magnetism', '')}"
+        )
+    return lines
+
+
+def _report(rows, title, paths) -> int:
     print(title)
     for line in table_lines(rows):
         print("  " + line)

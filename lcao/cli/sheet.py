@@ -86,7 +86,8 @@ def run(args) -> int:
             with open_store(args) as store:
                 sheet = build_sheet(species, level, source=args.constants, multiplicity=args.multiplicity, grid=grid,
                                     points=points, store=store, isotopes=args.isotopes, anharmonic=args.anharmonic,
-                                    dhf298_kj_per_mol=args.dhf298, polynomial=args.polynomial)
+                                    dhf298_kj_per_mol=args.dhf298, polynomial=args.polynomial, workers=args.workers,
+                                    progress=progress)
     finally:
         progress.close()
     paths = write_outputs(sheet, out, SHEET_WRITERS)

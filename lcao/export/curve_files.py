@@ -25,6 +25,7 @@ def curve_document(result) -> dict:
     """The ``curve.json`` document of a :class:`lcao.pipeline.CurveResult`."""
     from ..pipeline import CAUTION
     from ..store import PROTOCOL_VERSION
+    from .fit_fields import fit_document
     from ..units import CODATA_SOURCE, bohr_to_angstrom
 
     scan = result.scan
@@ -51,6 +52,7 @@ def curve_document(result) -> dict:
             "multiplicity_source": result.multiplicity_source,
             "level": result.level.as_dict(),
             "reference": scan.reference,
+            "references": scan.references,
             "grid": result.grid.as_dict(),
         },
         "units": {"distance": "angstrom (r_angstrom) and bohr (r_bohr)", "energy": "hartree", "conversions": CODATA_SOURCE},
@@ -69,14 +71,14 @@ def curve_document(result) -> dict:
             "reused_from_store": result.reused,
         },
         "notes": list(scan.notes) + list(result.warnings),
+        "execution": result.execution,
         "caution": CAUTION,
     }
-    if getattr(result, "along", ()):
-        doc["along_curve"] = [a for a in result.along]
-    fit = getattr(result, "fit", None)
-    if fit is not None:
-        doc["fit"] = fit.as_dict()
-    elif getattr(result, "fit_error", None):
+    if result.along:
+        doc["along_curve"] = list(result.along)
+    if result.fit is not None:
+        doc["fit"] = fit_document(result.fit)
+    elif result.fit_error:
         doc["fit"] = None
         doc["fit_error"] = result.fit_error
     return doc

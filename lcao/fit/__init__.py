@@ -1,8 +1,9 @@
 """From a curve to spectroscopic constants: local fit, Morse fit, vibrational levels, D_e.
 
-:func:`fit_curve` takes a :class:`lcao.pipeline.CurveResult` and returns a
-:class:`CurveFit` with a fixed set of fields, units in the field names of
-:meth:`CurveFit.as_dict`.
+:func:`fit_curve` takes a :class:`FitInput` (arrays in atomic units, built from
+a scan by :func:`lcao.scan.assemble.fit_input`) and returns a :class:`CurveFit`
+with a fixed set of fields in atomic units; :mod:`lcao.export.fit_fields`
+converts them, at the edge, to the fields of ``curve.json`` and the tables.
 
 Which points are fitted:
 
@@ -27,16 +28,15 @@ the same level (primary), ``morse.de`` (a model extrapolation), and
 from __future__ import annotations
 
 import logging
-import math
 import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
 
 from ..errors import FitError
-from ..units import HARTREE_CM1, HARTREE_EV, bohr_to_angstrom
+from ..units import HARTREE_EV, bohr_to_angstrom
 from .local import LocalFit, dunham_constants, local_fit
-from .morse import MorseFit, fit_morse, morse_levels
+from .morse import MorseFit, fit_morse
 from .vibration import VibrationalLevels, solve_levels
 
 log = logging.getLogger(__name__)
@@ -59,8 +59,40 @@ DE_CAUTION = (
 
 
 @dataclass(frozen=True)
+class FitInput:
+    """What the fit needs of a curve, as arrays in atomic units (bohr, hartree, electron masses).
+
+    Attributes:
+        well_r, well_e: the trusted points of the well branch; well_branch: its name.
+        refined_r, refined_e: trusted refinement points about the minimum (may be empty).
+        curve_r, curve_e: the lowest trusted point per distance; curve_s2: their <S^2> (NaN where none).
+        restricted_e, unrestricted_e: the trusted energies of each branch at ``curve_r`` (NaN where
+            the branch has none).
+        restricted_limit_only: the last trusted point is restricted and no unrestricted branch exists.
+        limit_e: the separated-atom limit at the same level.
+        mu: reduced mass, electron masses; isotopes: :class:`lcao.masses.Isotopes`; symbols: the atoms.
+    """
+
+    well_r: tuple
+    well_e: tuple
+    well_branch: str
+    refined_r: tuple
+    refined_e: tuple
+    curve_r: tuple
+    curve_e: tuple
+    curve_s2: tuple
+    restricted_e: tuple
+    unrestricted_e: tuple
+    restricted_limit_only: bool
+    limit_e: float
+    mu: float
+    isotopes: object = None
+    symbols: tuple = ("A", "B")
+
+
+@dataclass(frozen=True)
 class CurveFit:
-    """Fitted constants of one curve (atomic units inside; see :meth:`as_dict`).
+    """Fitted constants of one curve, atomic units (:mod:`lcao.export.fit_fields` converts them).
 
     Attributes:
         local: the quartic fit about the minimum.
@@ -72,6 +104,7 @@ class CurveFit:
         levels: vibrational levels, None when unbound.
         d0: D_0 = D_e - ZPE (hartree).
         minimum_above_limit: hartree, when unbound.
+        well_branch: the branch the local fit used; symbols: the atoms.
         warnings: messages from the fits.
     """
 
@@ -90,123 +123,38 @@ class CurveFit:
     symbols: tuple[str, str] = ("A", "B")
     warnings: tuple[str, ...] = field(default=())
 
-    def as_dict(self) -> dict:
-        a = bohr_to_angstrom
-        cm = HARTREE_CM1
-        c = self.constants
-        lf = self.local
-        out = {
-            "well_branch": self.well_branch,
-            "re_angstrom": float(a(lf.re)),
-            "re_uncertainty_angstrom": float(a(lf.re_err)),
-            "emin_hartree": lf.e_min,
-            "k_hartree_per_bohr2": lf.k,
-            "k_uncertainty_hartree_per_bohr2": lf.k_err,
-            "we_cm1": c["we"] * cm,
-            "wexe_cm1": c["wexe"] * cm,
-            "be_cm1": c["be"] * cm,
-            "alpha_e_cm1": c["alpha_e"] * cm,
-            "local_window_angstrom": [float(a(lf.r_window[0])), float(a(lf.r_window[1]))],
-            "local_points": lf.n_points,
-            "local_rms_hartree": lf.rms,
-            "reduced_mass": self.isotopes.as_dict(self.symbols) if self.isotopes is not None else None,
-            "bound": self.bound,
-            "de_ev": None if self.de is None else self.de * HARTREE_EV,
-            "de_source": "separated atoms at the same level",
-            "d0_ev": None if self.d0 is None else self.d0 * HARTREE_EV,
-            "minimum_above_limit_ev": None if self.minimum_above_limit is None else self.minimum_above_limit * HARTREE_EV,
-            "zpe_cm1": None if self.levels is None else self.levels.zpe * cm,
-            "morse": None,
-            "morse_error": self.morse_error,
-            "vibrational_levels": None,
-            "warnings": list(self.warnings),
-            "caution": DE_CAUTION,
-        }
-        if not self.bound:
-            out["binding"] = "not bound at this level"
-        m = self.morse
-        if m is not None:
-            we_m = m.a * math.sqrt(2.0 * m.de / self.mu)
-            out["morse"] = {
-                "de_ev": m.de * HARTREE_EV,
-                "de_uncertainty_ev": m.de_err * HARTREE_EV,
-                "de_note": "model value: the Morse asymptote, an extrapolation",
-                "a_per_angstrom": m.a / a(1.0),
-                "a_uncertainty_per_angstrom": m.a_err / a(1.0),
-                "re_angstrom": float(a(m.re)),
-                "re_uncertainty_angstrom": float(a(m.re_err)),
-                "emin_hartree": m.e_min,
-                "we_cm1": we_m * cm,
-                "wexe_cm1": (m.a**2 / (2.0 * self.mu)) * cm,
-                "window_angstrom": [float(a(m.window[0])), float(a(m.window[1]))],
-                "window_points": m.n_points,
-                "window_end": m.window_reason,
-                "rms_residual_hartree": m.rms,
-                "max_residual_hartree": m.max_abs,
-            }
-        lv = self.levels
-        if lv is not None:
-            k = min(N_LEVELS_REPORTED, lv.n_bound)
-            morse_g = None
-            if m is not None:
-                we_m = m.a * math.sqrt(2.0 * m.de / self.mu)
-                morse_g = morse_levels(we_m, m.a**2 / (2.0 * self.mu), k - 1) if k else []
-            out["vibrational_levels"] = {
-                "method": "sinc DVR (Colbert & Miller 1992) on a cubic spline of the lowest trusted points",
-                "n_bound": lv.n_bound,
-                "levels": [
-                    {
-                        "v": v,
-                        "g_cm1": lv.energies[v] * cm,
-                        "bv_cm1": None if not math.isfinite(lv.bv[v]) else lv.bv[v] * cm,
-                        "morse_g_cm1": None if morse_g is None else float(morse_g[v]) * cm,
-                    }
-                    for v in range(k)
-                ],
-                "dvr_grid_points": lv.grid_points,
-            }
-        return out
+    @property
+    def zpe(self) -> float | None:
+        return None if self.levels is None else self.levels.zpe
 
 
-def well_points(scan):
-    """(trusted points of the well branch, branch name); see the module docstring."""
-    branches = scan.branches
-    if "restricted" in branches and "unrestricted" in branches:
-        pts = [p for p in branches["restricted"] if p is not None and p.trusted]
-        return pts, "restricted"
-    pts = [p for p in scan.points if p.trusted]
-    return pts, (pts[0].branch if pts else "none")
-
-
-def morse_window(result, e_min: float, de: float):
-    """The points of the Morse fit and the reason the window ends there."""
-    pts = [p for p in result.scan.points if p.trusted]
-    if not pts:
+def morse_window(inp: FitInput, e_min: float, de: float):
+    """(indices into the curve arrays of the Morse fit's points, the reason the window ends there)."""
+    r, e = np.asarray(inp.curve_r), np.asarray(inp.curve_e)
+    if len(r) == 0:
         return [], "no trusted points"
-    rest = {p.r_bohr: p.energy_hartree for p in result.scan.branches.get("restricted", ()) if p is not None and p.trusted}
-    uns = {p.r_bohr: p.energy_hartree for p in result.scan.branches.get("unrestricted", ()) if p is not None and p.trusted}
-    i_min = int(np.argmin([p.energy_hartree for p in pts]))
-    end = len(pts)
+    rest, uns = np.asarray(inp.restricted_e), np.asarray(inp.unrestricted_e)
+    s2 = [None if not np.isfinite(x) else float(x) for x in inp.curve_s2]
+    i_min = int(np.argmin(e))
+    end = len(r)
     reason = "end of the grid"
-    for j in range(i_min + 1, len(pts)):
-        r = pts[j].r_bohr
-        if r in rest and r in uns and rest[r] - uns[r] > SPLIT_HARTREE:
-            end, reason = j, f"the unrestricted solution splits from the restricted one at {bohr_to_angstrom(r):.3f} A"
+    for j in range(i_min + 1, len(r)):
+        if np.isfinite(rest[j]) and np.isfinite(uns[j]) and rest[j] - uns[j] > SPLIT_HARTREE:
+            end, reason = j, f"the unrestricted solution splits from the restricted one at {bohr_to_angstrom(r[j]):.3f} A"
             break
-        if _s2_jump(pts, j):
+        if _s2_jump(s2, j):
             end = j
-            reason = f"<S^2> jumps from {pts[j - 1].s2:.2f} to {pts[j].s2:.2f} at {bohr_to_angstrom(r):.3f} A (a kink)"
+            reason = f"<S^2> jumps from {s2[j - 1]:.2f} to {s2[j]:.2f} at {bohr_to_angstrom(r[j]):.3f} A (a kink)"
             break
     wall = max(INNER_WALL_DE * de, INNER_WALL_MIN_HARTREE)
-    window = [p for p in pts[:end] if p.energy_hartree - e_min <= wall or p.r_bohr >= pts[i_min].r_bohr]
+    window = [i for i in range(end) if e[i] - e_min <= wall or r[i] >= r[i_min]]
     return window, reason
 
 
-def _s2_jump(pts, j) -> bool:
-    """True where <S^2> changes between points j-1 and j by more than S2_JUMP and
-    more than three times the change over the neighbouring intervals (a
-    discontinuity, not the steady rise of spin contamination)."""
-    s = [p.s2 for p in pts]
+def _s2_jump(s, j) -> bool:
+    """True where <S^2> changes between points j-1 and j by more than S2_JUMP and more than three times
+    the change over the neighbouring intervals (a discontinuity, not the steady rise of spin
+    contamination)."""
     if s[j] is None or s[j - 1] is None:
         return False
     step = abs(s[j] - s[j - 1])
@@ -216,55 +164,39 @@ def _s2_jump(pts, j) -> bool:
     return not around or step > 3.0 * max(around)
 
 
-def fit_curve(result, isotopes=None) -> CurveFit:
+def fit_curve(inp: FitInput) -> CurveFit:
     """Fit a curve (see the module docstring).
-
-    Args:
-        result: a :class:`lcao.pipeline.CurveResult`.
-        isotopes: :class:`lcao.masses.Isotopes` (default: the result's, or most abundant).
 
     Raises:
         FitError: too few trusted points or no minimum inside the grid.
     """
-    from ..masses import resolve_isotopes
-
-    iso = isotopes or getattr(result, "isotopes", None) or resolve_isotopes(result.species.atoms)
-    mu = iso.reduced_mass_me
-    well, well_branch = well_points(result.scan)
-    if len(well) < 5:
-        raise FitError(f"only {len(well)} trusted points in the well; a fit needs at least 5")
-    r = np.array([p.r_bohr for p in well])
-    e = np.array([p.energy_hartree for p in well])
-    lf = local_fit(r, e)
-    refined = [p for p in getattr(result, "refined", ()) if p is not None and p.trusted]
-    if len(refined) >= 7:
+    mu = inp.mu
+    if len(inp.well_r) < 5:
+        raise FitError(f"only {len(inp.well_r)} trusted points in the well; a fit needs at least 5")
+    lf = local_fit(inp.well_r, inp.well_e)
+    if len(inp.refined_r) >= 7:
         try:
-            lf = local_fit([p.r_bohr for p in refined], [p.energy_hartree for p in refined])
+            lf = local_fit(inp.refined_r, inp.refined_e)
         except FitError as exc:
             log.info("refinement points not used: %s", exc)
     consts = dunham_constants(lf.re, lf.k, lf.c3, lf.c4, mu)
     notes = []
-    limit = result.limit_energy_hartree
-    gap = limit - lf.e_min
+    gap = inp.limit_e - lf.e_min
     if gap <= 0:
         notes.append(
             f"not bound at this level: the minimum lies {-gap * HARTREE_EV:.3f} eV above the separated atoms;"
             " no Morse parameters or vibrational levels are given"
         )
-        return CurveFit(
-            lf, consts, mu, iso, False, None, None, "not bound at this level", None, None, -gap, well_branch,
-            result.species.atoms, tuple(notes),
-        )
-    # Morse fit over the automatic window
+        return CurveFit(lf, consts, mu, inp.isotopes, False, None, None, "not bound at this level", None, None, -gap,
+                        inp.well_branch, inp.symbols, tuple(notes))
     morse_fit, morse_err = None, None
-    win, reason = morse_window(result, lf.e_min, gap)
+    win, reason = morse_window(inp, lf.e_min, gap)
     try:
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
-            morse_fit = fit_morse([p.r_bohr for p in win], [p.energy_hartree for p in win], reason)
-        for w in caught:
+            morse_fit = fit_morse([inp.curve_r[i] for i in win], [inp.curve_e[i] for i in win], reason)
+        for w in caught:  # said once, in the fit's warnings (the summary prints them)
             notes.append(f"Morse fit: {w.message}")
-            warnings.warn(str(w.message), UserWarning, stacklevel=2)
     except FitError as exc:
         morse_err = str(exc)
     if morse_fit is not None and morse_fit.rms > MORSE_POOR_FRACTION * morse_fit.de:
@@ -272,11 +204,9 @@ def fit_curve(result, isotopes=None) -> CurveFit:
             f"the Morse form describes this curve poorly (residual RMS {morse_fit.rms:.2e} Eh,"
             f" {100 * morse_fit.rms / morse_fit.de:.0f} % of its D_e); use the local constants and solved levels"
         )
-    # vibrational levels on a spline of the lowest trusted points
     levels = None
-    low = [p for p in result.scan.points if p.trusted]
     try:
-        levels = _levels(low, mu, limit, lf.e_min)
+        levels = _levels(inp.curve_r, inp.curve_e, mu, inp.limit_e, lf.e_min)
     except (ValueError, np.linalg.LinAlgError) as exc:
         notes.append(f"vibrational levels not solved: {exc}")
     if levels is not None and levels.n_bound:
@@ -284,22 +214,20 @@ def fit_curve(result, isotopes=None) -> CurveFit:
     else:
         zpe = 0.5 * consts["we"] - 0.25 * consts["wexe"]
         notes.append("ZPE from omega_e and omega_e x_e (no solved levels)")
-    if low and low[-1].branch == "restricted" and "unrestricted" not in result.scan.branches:
-        if low[-1].energy_hartree - limit > 1e-2:
-            notes.append("this restricted curve dissociates to the wrong limit; D_e from the separated atoms stands, the Morse asymptote does not")
-    return CurveFit(
-        lf, consts, mu, iso, True, gap, morse_fit, morse_err, levels, gap - zpe, None, well_branch,
-        result.species.atoms, tuple(notes),
-    )
+    if inp.restricted_limit_only and len(inp.curve_e) and inp.curve_e[-1] - inp.limit_e > 1e-2:
+        notes.append("this restricted curve dissociates to the wrong limit; D_e from the separated atoms stands,"
+                     " the Morse asymptote does not")
+    return CurveFit(lf, consts, mu, inp.isotopes, True, gap, morse_fit, morse_err, levels, gap - zpe, None,
+                    inp.well_branch, inp.symbols, tuple(notes))
 
 
-def _levels(points, mu, limit, e_min):
+def _levels(r, e, mu, limit, e_min):
     from scipy.interpolate import CubicSpline
 
-    if len(points) < 5:
+    if len(r) < 5:
         raise ValueError("fewer than 5 trusted points")
-    r = np.array([p.r_bohr for p in points])
-    e = np.array([p.energy_hartree for p in points])
+    r = np.asarray(r, float)
+    e = np.asarray(e, float)
     spline = CubicSpline(r, e)
     e_cut = min(limit, float(e[-1]))
     return solve_levels(spline, mu, float(r[0]), float(r[-1]), e_cut, float(min(e.min(), e_min)))

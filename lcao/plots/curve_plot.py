@@ -44,7 +44,7 @@ def plot_curve(result, ax=None):
         ax.plot([p.r_angstrom for p in bad], rel([p.energy_hartree for p in bad]), "D", ms=5, mfc="white", mec="black", label="flagged point")
     ax.axhline(0.0, color="0.6", lw=0.8)
     ax.annotate("separated atoms", xy=(1.0, 0.0), xycoords=("axes fraction", "data"), ha="right", va="bottom", fontsize=8, color="0.35")
-    fit = getattr(result, "fit", None)
+    fit = result.fit
     if fit is not None and fit.morse is not None:
         from ..fit.morse import morse
 

@@ -25,8 +25,11 @@ def plot_re(rows, ax=None):
     ax = ax or _new_axes()
     rows = _ok(rows)
     x = np.arange(len(rows))
-    y = [r.values.get("re_angstrom") for r in rows]
-    err = [r.values.get("re_uncertainty_angstrom") or 0.0 for r in rows]
+    from ..export.series_files import member_values
+
+    vals = [member_values(r) for r in rows]
+    y = [v.get("re_angstrom") for v in vals]
+    err = [v.get("re_uncertainty_angstrom") or 0.0 for v in vals]
     hb = [r.handbook.get("re_angstrom") if r.handbook else None for r in rows]
     ax.errorbar(x, y, yerr=err, fmt="s-", color="black", ms=5, lw=1, label="computed")
     hx = [i for i, v in enumerate(hb) if v is not None]
@@ -42,12 +45,13 @@ def plot_bond_orders(rows, ax=None):
     ax = ax or _new_axes()
     rows = _ok(rows)
     x = np.arange(len(rows))
+    summaries = [r.orbitals for r in rows]
     for key, label, style in (
         ("bond_order_mo_count", "MO counting", dict(color="black", marker="s", ls="-")),
         ("bond_order_mayer", "Mayer", dict(color="0.35", marker="o", ls="--")),
         ("bond_order_mulliken", "Mulliken overlap population", dict(color="0.6", marker="^", ls=":")),
     ):
-        ys = [np.nan if r.values.get(key) is None else r.values.get(key) for r in rows]
+        ys = [np.nan if o is None or getattr(o, key) is None else getattr(o, key) for o in summaries]
         ax.plot(x, ys, label=label, **style)
     ax.set_xticks(x, _names(rows), fontsize=8)
     ax.set_ylabel("bond order")

@@ -1,1 +1,2 @@
-"""Single points with the rescue ladder and stability analysis; the sweep protocol; grids."""
+"""The scan: what to compute (plan), the tasks that compute it, the client session that runs them and
+writes the store, the protocol stage by stage, and the pure assembly of the curve."""

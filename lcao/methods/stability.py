@@ -157,7 +157,7 @@ def lowest_mode(h):
 
 def dense_possible(mf) -> bool:
     """Whether the integrals are in memory and the basis and rotation space are small enough."""
-    if getattr(mf, "_eri", None) is None or mf.mol.nao > DENSE_MAX_NAO:
+    if mf.__dict__.get("_eri") is None or mf.mol.nao > DENSE_MAX_NAO:
         return False
     occ = np.asarray(mf.mo_occ)
     if occ.ndim == 1:
@@ -168,7 +168,7 @@ def dense_possible(mf) -> bool:
 
 
 def _integrals(mf):
-    """The unpacked integrals kept on ``mf`` by :mod:`lcao.scan.jk` where it has them, else the packed ones."""
+    """The unpacked integrals kept on ``mf`` by :mod:`lcao.methods.jk` where it has them, else the packed ones."""
     from .jk import MAX_NAO, unpacked_of
 
     return unpacked_of(mf) if mf.mol.nao <= MAX_NAO else mf._eri
@@ -224,8 +224,9 @@ def _davidson(hx, hdiag, x0):
 
 
 def davidson_internal(mf, reference: str):
-    """Lowest internal mode by Davidson iteration on PySCF's Hessian-vector products (the set-up
-    of ``pyscf.scf.stability.*_internal``), or (None, None) when stable."""
+    """Lowest internal mode by Davidson iteration on PySCF's orbital-Hessian products (its public
+    ``pyscf.soscf.newton_ah.gen_g_hop_*``, scaled as its stability analysis scales them), or
+    (None, None) when stable."""
     from pyscf.soscf import newton_ah
 
     gen = {"RHF": newton_ah.gen_g_hop_rhf, "UHF": newton_ah.gen_g_hop_uhf, "ROHF": newton_ah.gen_g_hop_rohf}[reference]
@@ -238,12 +239,36 @@ def davidson_internal(mf, reference: str):
 
 
 def davidson_rhf_to_uhf(mf):
-    """Lowest RHF -> UHF (triplet) mode by Davidson iteration, or (None, None) when stable. Only
-    the triplet problem is solved (``pyscf.scf.stability.rhf_external`` solves the real ->
-    complex one as well, which the protocol does not use)."""
-    from pyscf.scf import stability
+    """Lowest RHF -> UHF (triplet) mode by Davidson iteration, or (None, None) when stable.
 
-    _, _, hop, hdiag = stability._gen_hop_rhf_external(mf, with_symmetry=False)
+    The Hessian-vector product is D x + C_v^T v(d) C_o with d = C_v (2x) C_o^T + transpose and v the
+    triplet response of PySCF's public ``mf.gen_response(singlet=False)`` (the same matrix as the
+    dense :func:`rhf_hessians` triplet block)."""
+    occ = np.asarray(mf.mo_occ) > 0
+    co, cv = mf.mo_coeff[:, occ], mf.mo_coeff[:, ~occ]
+    fock_ao = mf.get_hcore() + mf.get_veff(mf.mol, mf.make_rdm1())
+    foo = co.T @ fock_ao @ co
+    fvv = cv.T @ fock_ao @ cv
+    nocc, nvir = co.shape[1], cv.shape[1]
+    hdiag = (fvv.diagonal().reshape(-1, 1) - foo.diagonal()).ravel()
+    response = mf.gen_response(singlet=False, hermi=1)
+
+    def hop(x):
+        x1 = x.reshape(nvir, nocc)
+        x2 = fvv @ x1 - x1 @ foo
+        d1 = cv @ (2.0 * x1) @ co.T
+        x2 = x2 + cv.T @ response(d1 + d1.T) @ co
+        return x2.ravel()
+
     x0 = np.zeros_like(hdiag)
     x0[hdiag > 1e-5] = 1.0 / hdiag[hdiag > 1e-5]
     return _davidson(hop, hdiag, x0)
+
+
+def rotate_orbitals(mo_coeff, mo_occ, dx):
+    """Orbitals rotated by the step ``dx`` (PySCF's vector layout of occupied-virtual rotations):
+    C exp(R), R the antisymmetric matrix of ``pyscf.scf.hf.unpack_uniq_var``."""
+    from pyscf.scf import hf
+    from scipy.linalg import expm
+
+    return np.dot(mo_coeff, expm(hf.unpack_uniq_var(dx, mo_occ)))

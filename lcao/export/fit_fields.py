@@ -1,0 +1,99 @@
+"""The fit block of ``curve.json`` and the tables: a :class:`lcao.fit.CurveFit` (atomic units) converted
+to the published field names, units in each name (the conversions happen here, at the edge)."""
+
+from __future__ import annotations
+
+import math
+
+from ..fit import DE_CAUTION, N_LEVELS_REPORTED
+from ..fit.morse import morse_levels
+from ..units import HARTREE_CM1, HARTREE_EV, bohr_to_angstrom
+
+
+def _ev(x):
+    return None if x is None else x * HARTREE_EV
+
+
+def morse_wavenumbers(fit) -> tuple[float, float]:
+    """(omega_e, omega_e x_e) of the Morse model, hartree."""
+    m = fit.morse
+    return m.a * math.sqrt(2.0 * m.de / fit.mu), m.a**2 / (2.0 * fit.mu)
+
+
+def fit_document(fit) -> dict:
+    """The ``fit`` block of ``curve.json`` (field names documented in the README)."""
+    a = bohr_to_angstrom
+    cm = HARTREE_CM1
+    c = fit.constants
+    lf = fit.local
+    out = {
+        "well_branch": fit.well_branch,
+        "re_angstrom": float(a(lf.re)),
+        "re_uncertainty_angstrom": float(a(lf.re_err)),
+        "emin_hartree": lf.e_min,
+        "k_hartree_per_bohr2": lf.k,
+        "k_uncertainty_hartree_per_bohr2": lf.k_err,
+        "we_cm1": c["we"] * cm,
+        "wexe_cm1": c["wexe"] * cm,
+        "be_cm1": c["be"] * cm,
+        "alpha_e_cm1": c["alpha_e"] * cm,
+        "local_window_angstrom": [float(a(lf.r_window[0])), float(a(lf.r_window[1]))],
+        "local_points": lf.n_points,
+        "local_rms_hartree": lf.rms,
+        "reduced_mass": fit.isotopes.as_dict(fit.symbols) if fit.isotopes is not None else None,
+        "bound": fit.bound,
+        "de_ev": _ev(fit.de),
+        "de_source": "separated atoms at the same level",
+        "d0_ev": _ev(fit.d0),
+        "minimum_above_limit_ev": _ev(fit.minimum_above_limit),
+        "zpe_cm1": None if fit.levels is None else fit.levels.zpe * cm,
+        "morse": None,
+        "morse_error": fit.morse_error,
+        "vibrational_levels": None,
+        "warnings": list(fit.warnings),
+        "caution": DE_CAUTION,
+    }
+    if not fit.bound:
+        out["binding"] = "not bound at this level"
+    m = fit.morse
+    if m is not None:
+        we_m, wexe_m = morse_wavenumbers(fit)
+        out["morse"] = {
+            "de_ev": m.de * HARTREE_EV,
+            "de_uncertainty_ev": m.de_err * HARTREE_EV,
+            "de_note": "model value: the Morse asymptote, an extrapolation",
+            "a_per_angstrom": m.a / a(1.0),
+            "a_uncertainty_per_angstrom": m.a_err / a(1.0),
+            "re_angstrom": float(a(m.re)),
+            "re_uncertainty_angstrom": float(a(m.re_err)),
+            "emin_hartree": m.e_min,
+            "we_cm1": we_m * cm,
+            "wexe_cm1": wexe_m * cm,
+            "window_angstrom": [float(a(m.window[0])), float(a(m.window[1]))],
+            "window_points": m.n_points,
+            "window_end": m.window_reason,
+            "rms_residual_hartree": m.rms,
+            "max_residual_hartree": m.max_abs,
+        }
+    lv = fit.levels
+    if lv is not None:
+        k = min(N_LEVELS_REPORTED, lv.n_bound)
+        morse_g = None
+        if m is not None:
+            we_m, wexe_m = morse_wavenumbers(fit)
+            morse_g = morse_levels(we_m, wexe_m, k - 1) if k else []
+        out["vibrational_levels"] = {
+            "method": "sinc DVR (Colbert & Miller 1992) on a cubic spline of the lowest trusted points",
+            "n_bound": lv.n_bound,
+            "levels": [
+                {
+                    "v": v,
+                    "g_cm1": lv.energies[v] * cm,
+                    "bv_cm1": None if not math.isfinite(lv.bv[v]) else lv.bv[v] * cm,
+                    "morse_g_cm1": None if morse_g is None else float(morse_g[v]) * cm,
+                }
+                for v in range(k)
+            ],
+            "dvr_grid_points": lv.grid_points,
+        }
+    return out

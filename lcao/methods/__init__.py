@@ -1,0 +1,80 @@
+"""Levels of theory: one module per method family, all behind :class:`lcao.methods.base.Method`.
+
+The registry maps the method name of a ``METHOD/BASIS`` level to the family that computes it.
+Hartree-Fock (:mod:`lcao.methods.hf`) is registered here; a new family registers itself with
+:func:`register` and the driver, the store and every output take it as it is::
+
+    from lcao.methods import register
+    register(MyMethod())          # MyMethod.names = ("MYMETHOD",)
+    lcao.curve("N2", "MYMETHOD/cc-pVDZ")
+"""
+
+from __future__ import annotations
+
+from .base import (
+    BRANCHES,
+    AtomResult,
+    Capabilities,
+    Method,
+    PointResult,
+    StatePlan,
+    Target,
+    Warm,
+    lagrange_extrapolate,
+)
+
+__all__ = [
+    "BRANCHES", "AtomResult", "Capabilities", "Method", "PointResult", "StatePlan", "Target", "Warm",
+    "lagrange_extrapolate", "known_methods", "method_for", "method_named", "register",
+]
+
+_REGISTRY: dict[str, Method] = {}
+
+
+def register(method: Method, replace: bool = False) -> Method:
+    """Make ``method`` answer to each of its ``names``; returns it.
+
+    Raises:
+        ValueError: a name is already taken (unless ``replace``) or the method has no names.
+    """
+    if not method.names:
+        raise ValueError(f"{type(method).__name__} declares no method names")
+    for name in method.names:
+        key = name.upper()
+        if key in _REGISTRY and not replace and _REGISTRY[key] is not method:
+            raise ValueError(f"method name {key!r} is already registered to {type(_REGISTRY[key]).__name__}")
+    for name in method.names:
+        _REGISTRY[name.upper()] = method
+    return method
+
+
+def unregister(method: Method) -> None:
+    """Forget every name of ``method`` (tests that register a method of their own)."""
+    for key in [k for k, v in _REGISTRY.items() if v is method]:
+        del _REGISTRY[key]
+
+
+def known_methods() -> tuple[str, ...]:
+    """Every registered method name, in registration order."""
+    return tuple(_REGISTRY)
+
+
+def method_named(name: str) -> Method | None:
+    return _REGISTRY.get(name.upper())
+
+
+def method_for(level) -> Method:
+    """The method family of a :class:`lcao.levels.Level`."""
+    got = _REGISTRY.get(level.method.upper())
+    if got is None:  # pragma: no cover - parse_level refuses unknown names
+        raise KeyError(f"no method is registered for {level.method!r}")
+    return got
+
+
+def _register_builtin() -> None:
+    from .hf import HartreeFock
+
+    register(HartreeFock())
+
+
+_register_builtin()

@@ -1,0 +1,205 @@
+"""From computed sweeps to a curve (pure functions, no computation).
+
+Per distance the lowest trusted solution over the sweeps of a branch is kept (the gap between the
+sweeps recorded), then the lowest over the branches (a restricted point within
+:data:`BRANCH_SPLIT_HARTREE` of the unrestricted one is the same solution and stays restricted).
+Points that converged but lie well above the smooth curve through their neighbours are flagged
+(:func:`lcao.points.outlier_reasons`). Notes say what a user must know: a curve that misses its
+separated atoms, atoms in the wrong spin states, spin contamination, flagged points, disagreeing
+sweeps.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, replace
+
+from ..points import CurvePoint, outlier_reasons
+from ..units import bohr_to_angstrom
+
+#: unrestricted energies must lie this far below restricted ones to count as a separate branch
+BRANCH_SPLIT_HARTREE = 1e-7
+#: <S^2> above S(S+1) by more than this fraction (of S(S+1), at least of 0.75) at the lowest point is
+#: reported as spin contamination (the usual 10 % rule of thumb)
+SPIN_CONTAMINATION = 0.10
+
+
+@dataclass(frozen=True)
+class ScanResult:
+    """Outcome of the protocol for one species, multiplicity and level.
+
+    Attributes:
+        points: per grid distance, the lowest trusted solution (or the best untrusted one, flagged,
+            where none is trusted).
+        branches: 'restricted' and/or 'unrestricted' -> points (None where not computed).
+        sweeps: sweep name -> points of that sweep (None where not computed).
+        reference: the name outputs show for the primary branch ('RHF', 'UHF', ...).
+        references: branch -> name.
+        instability: (last stable r, first unstable r) in bohr where the primary branch turns unstable.
+        limit: the separated-atom limit at the same level (:class:`lcao.atoms.SeparatedAtoms`).
+        fragment_limit_hartree: the separated atoms in the spin states a single determinant of this
+            multiplicity reaches.
+        computed, reused: points computed now and taken from the store.
+        notes: messages worth showing to the user.
+    """
+
+    points: tuple[CurvePoint, ...]
+    branches: dict
+    sweeps: dict
+    reference: str
+    instability: tuple[float, float] | None
+    limit: object
+    fragment_limit_hartree: float | None
+    computed: int
+    reused: int
+    notes: tuple[str, ...] = field(default=())
+    references: dict = field(default_factory=dict)
+
+
+def curve_points(found: dict, n: int, branch: str, sweep: str) -> list:
+    """Points of one sweep (index -> :class:`lcao.methods.PointResult`) as CurvePoints (None where absent)."""
+    out = []
+    for i in range(n):
+        p = found.get(i)
+        if p is None:
+            out.append(None)
+            continue
+        flag = None if p.converged else (p.reason or "not converged")
+        out.append(CurvePoint(p.r_bohr, p.energy, p.converged, flag, branch, sweep, p.cycles, p.s2, None, p.rescue,
+                              p.stability, dict(p.components)))
+    return out
+
+
+def lowest(candidates, n: int) -> list:
+    """Per index, the lowest trusted point among several lists, with the spread between them."""
+    out = []
+    for i in range(n):
+        pts = [c[i] for c in candidates if c[i] is not None]
+        if not pts:
+            out.append(None)
+            continue
+        good = [p for p in pts if p.trusted]
+        gap = None
+        if len(good) >= 2:
+            es = [p.energy_hartree for p in good]
+            gap = float(max(es) - min(es))
+        best = min(good, key=lambda p: p.energy_hartree) if good else pts[0]
+        out.append(replace(best, sweep_gap_hartree=gap))
+    return out
+
+
+def flag_outliers(points) -> list:
+    idx = [i for i, p in enumerate(points) if p is not None]
+    if len(idx) < 3:
+        return list(points)
+    reasons = outlier_reasons([points[i].r_bohr for i in idx], [points[i].energy_hartree for i in idx],
+                              [points[i].trusted for i in idx])
+    out = list(points)
+    for j, i in enumerate(idx):
+        if reasons[j]:
+            out[i] = replace(points[i], flag=reasons[j])
+    return out
+
+
+def lowest_over_branches(branches: dict, n: int) -> list:
+    """Per distance the lowest trusted point over the branches (restricted kept within the split)."""
+    final = []
+    for i in range(n):
+        cands = [b[i] for b in branches.values() if b[i] is not None]
+        good = [p for p in cands if p.trusted]
+        if good:
+            best = min(good, key=lambda p: (p.energy_hartree, p.branch != "restricted"))
+            rest = [p for p in good if p.branch == "restricted"]
+            if rest and best.branch != "restricted" and rest[0].energy_hartree - best.energy_hartree < BRANCH_SPLIT_HARTREE:
+                best = rest[0]
+            final.append(best)
+        else:
+            final.append(cands[0])
+    return flag_outliers(final)
+
+
+def curve_notes(final, limit_hartree: float, fragment_limit, multiplicity: int, spin_square: bool) -> list[str]:
+    """The notes of a finished curve (see the module docstring)."""
+    notes = []
+    n = len(final)
+    trusted = [p for p in final if p.trusted]
+    if trusted:
+        last = trusted[-1]
+        gap = last.energy_hartree - limit_hartree
+        if gap > 1e-3:
+            notes.append(
+                f"at {last.r_angstrom:.2f} A the curve lies {gap:.4f} Eh above the separated atoms"
+                + (" (a restricted curve dissociates to the wrong limit)" if last.branch == "restricted" else "")
+            )
+    if fragment_limit is not None and fragment_limit > limit_hartree + 1e-6:
+        notes.append(
+            f"a single determinant of multiplicity {multiplicity} separates into atoms in spin states"
+            f" {fragment_limit - limit_hartree:.4f} Eh above the ground-state atoms"
+        )
+    if trusted and spin_square:
+        low = min(trusted, key=lambda p: p.energy_hartree)
+        exact = (multiplicity - 1) / 2 * ((multiplicity - 1) / 2 + 1)
+        if low.s2 is not None and low.s2 - exact > SPIN_CONTAMINATION * max(exact, 0.75):
+            notes.append(
+                f"spin contamination at the lowest point ({low.r_angstrom:.3f} A): <S^2> = {low.s2:.3f} against"
+                f" S(S+1) = {exact:.3f}; the unrestricted well mixes in higher spin states, so its minimum and"
+                " constants are doubtful (compare ROHF or a larger basis)"
+            )
+    n_flag = sum(1 for p in final if not p.trusted)
+    if n_flag:
+        notes.append(f"{n_flag} of {n} points are flagged and kept out of every fit")
+    gaps = [p.sweep_gap_hartree for p in final if p.sweep_gap_hartree]
+    if gaps and max(gaps) > 1e-4:
+        notes.append(f"the sweeps disagree by up to {max(gaps):.4f} Eh; the lower is kept at each distance")
+    return notes
+
+
+def instability_note(plan, r_unstable_bohr: float) -> str:
+    """The note of a primary branch that turns unstable where the level does not follow the other branch."""
+    other = "unrestricted" if plan.primary == "restricted" else "restricted"
+    return (f"the {plan.reference[plan.primary]} solution is unstable towards an {other} one beyond"
+            f" {bohr_to_angstrom(r_unstable_bohr):.3f} A; use a level that follows it (HF or UHF) for a curve"
+            " that dissociates correctly")
+
+
+def first_unstable(points, towards: str) -> int | None:
+    """The first index whose converged point is unstable towards ``towards``."""
+    for i, p in enumerate(points):
+        if p is not None and p.converged and p.unstable_towards == towards:
+            return i
+    return None
+
+
+
+def fit_input(result: ScanResult, refined, isotopes, symbols):
+    """The arrays the fit takes (:class:`lcao.fit.FitInput`) from a scan and its refinement points.
+
+    The well branch is the restricted one when a curve has both (the state Hartree-Fock tables
+    report for a closed-shell singlet), otherwise the lowest trusted points.
+    """
+    import numpy as np
+
+    from ..fit import FitInput
+
+    branches = result.branches
+    if "restricted" in branches and "unrestricted" in branches:
+        well = [p for p in branches["restricted"] if p is not None and p.trusted]
+        well_branch = "restricted"
+    else:
+        well = [p for p in result.points if p.trusted]
+        well_branch = well[0].branch if well else "none"
+    low = [p for p in result.points if p.trusted]
+
+    def branch_energies(name):
+        by_r = {p.r_bohr: p.energy_hartree for p in branches.get(name, ()) if p is not None and p.trusted}
+        return tuple(by_r.get(p.r_bohr, np.nan) for p in low)
+
+    ref = [p for p in refined if p is not None and p.trusted]
+    return FitInput(
+        tuple(p.r_bohr for p in well), tuple(p.energy_hartree for p in well), well_branch,
+        tuple(p.r_bohr for p in ref), tuple(p.energy_hartree for p in ref),
+        tuple(p.r_bohr for p in low), tuple(p.energy_hartree for p in low),
+        tuple(np.nan if p.s2 is None else p.s2 for p in low),
+        branch_energies("restricted"), branch_energies("unrestricted"),
+        bool(low) and low[-1].branch == "restricted" and "unrestricted" not in branches,
+        result.limit.energy_hartree, isotopes.reduced_mass_me, isotopes, tuple(symbols),
+    )

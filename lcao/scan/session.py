@@ -1,0 +1,303 @@
+"""One run on the client side: tasks go to the executor, results come back and only this process
+writes them to the store.
+
+A :class:`Session` is shared by every curve of a run (a series runs its members' curves side by side
+on one executor). Its coroutines look up what the store already has, send the rest out as tasks
+(:mod:`lcao.scan.tasks`), and commit each result as it arrives, so a run that is killed loses only
+the tasks in flight and a rerun computes only what is missing.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import logging
+from concurrent.futures.process import BrokenProcessPool
+from dataclasses import dataclass, field
+
+from ..execute.serial import SerialExecutor
+from ..methods.cache import BoundedCache, nbytes
+from ..execute.worker import run_task
+from ..store import point_key
+from .plan import SweepSpec, pieces
+from .tasks import AtomTask, ChainTask, ProbeTask, remember
+
+log = logging.getLogger(__name__)
+
+#: a long chain is split into tasks of about this many seconds (by the method's estimate, then by
+#: what the run measures): a killed run loses at most that much per worker, and progress is reported
+#: at least that often. Chains of Hartree-Fock points in small bases stay whole.
+TASK_SECONDS = 5.0
+
+
+@dataclass
+class Tally:
+    """Points of one curve computed now and taken from the store (each counted once)."""
+
+    computed: int = 0
+    reused: int = 0
+    seen: set = field(default_factory=set)
+    #: the processes that computed this curve's points
+    pids: set = field(default_factory=set)
+
+    def count(self, key, computed: bool) -> None:
+        if key in self.seen:
+            return
+        self.seen.add(key)
+        if computed:
+            self.computed += 1
+        else:
+            self.reused += 1
+
+
+#: orbitals of this run's points kept in memory for the analysis (5 KB per point of N2 in 6-31G,
+#: 58 KB in cc-pVTZ)
+KEPT_BYTES = 64 * 2**20
+
+
+def _orbital_bytes(point) -> int:
+    return nbytes(point.orbitals)
+
+
+def kept_key(species, multiplicity, level, sweep, r_bohr) -> tuple:
+    return (species.label, multiplicity, level.key(), sweep, round(float(r_bohr), 8))
+
+
+def _seeded(seed) -> list:
+    hist: list = []
+    remember(hist, seed)
+    return hist
+
+
+class Session:
+    """The client side of a run (see the module docstring).
+
+    Args:
+        store: a :class:`lcao.store.Store` (written only here).
+        executor: a :class:`lcao.execute.Executor`.
+        progress: optional callable(label, points) after each finished task.
+    """
+
+    def __init__(self, store, executor, progress=None):
+        self.store = store
+        self.executor = executor
+        self.progress = progress
+        self.pids: set = set()
+        self._atoms: dict = {}
+        self._rate: dict = {}
+        #: points computed in this run with their orbitals (never stored), for the analysis
+        self.kept = BoundedCache(KEPT_BYTES, _orbital_bytes)
+
+    # tasks ---------------------------------------------------------------------------------
+
+    async def run(self, task):
+        """Run one task on the executor; returns its value. A worker process that dies hands its
+        task, and the rest of the run, to this process (with a warning)."""
+        try:
+            done = await asyncio.wrap_future(self.executor.submit(run_task, task))
+        except BrokenProcessPool:
+            if not isinstance(self.executor, SerialExecutor):
+                log.warning("a worker process ended unexpectedly; the rest of the run is computed in this process")
+                self.executor.terminate()
+                self.executor = SerialExecutor()
+            done = run_task(task)
+        self.pids.add(done.pid)
+        return done
+
+    def _tick(self, label: str, n: int) -> None:
+        if self.progress is not None and n:
+            self.progress(label, n)
+
+    def points_per_task(self, method, target, level_key: str) -> int:
+        rate = self._rate.get(level_key)
+        if rate is None:
+            rate = method.seconds_per_point(method.basis_size(target))
+        return max(1, int(TASK_SECONDS / max(rate, 1e-6)))
+
+    # points ---------------------------------------------------------------------------------
+
+    def stored_point(self, species, multiplicity, level, sweep, r_bohr):
+        return self.store.get_point(species, multiplicity, level, sweep, r_bohr)
+
+    def commit_point(self, species, multiplicity, level, sweep, point, tally: Tally) -> None:
+        self.store.put_point(species, multiplicity, level, sweep, point)
+        tally.count(point_key(species, multiplicity, level, sweep, point.r_bohr), True)
+        if point.orbitals is not None:
+            self.kept.put(kept_key(species, multiplicity, level, sweep, point.r_bohr), point)
+
+    async def chain(self, method, species, target, spec: SweepSpec, tally: Tally) -> dict:
+        """Run one sweep chain; returns index -> :class:`lcao.methods.PointResult` (stored or new, the
+        seed included)."""
+        level, mult = target.level, target.multiplicity
+        r_all = spec.r_all
+        got: dict = {}
+
+        def known(i):
+            p = self.stored_point(species, mult, level, spec.sweep, r_all[i])
+            if p is not None:
+                got[i] = p
+                tally.count(point_key(species, mult, level, spec.sweep, r_all[i]), False)
+            return p
+
+        seed_known = known(spec.seed) if spec.seed is not None else None
+        stored = [known(i) for i in spec.indices]
+        missing = [i for i, p in zip(spec.indices, stored) if p is None]
+        if not missing:
+            self._tick(spec.sweep, len(spec.indices))
+            return got
+        size = self.points_per_task(method, target, level.key())
+        history: tuple = ()
+        parts = pieces(spec.indices, size)
+        for j, part in enumerate(parts):
+            part_known = tuple(got.get(i) for i in part)
+            if all(p is not None for p in part_known) and not (j == 0 and spec.seed is not None and seed_known is None):
+                # nothing to compute in this piece: its history goes on here
+                hist = list(history) if j else ([] if seed_known is None else _seeded(seed_known))
+                for p in part_known:
+                    remember(hist, p)
+                history = tuple(hist)
+                self._tick(spec.sweep, len(part))
+                continue
+            task = ChainTask(method, target, spec.sweep, spec.branch, tuple(r_all[i] for i in part), part_known,
+                             spec.start, history, r_all[spec.seed] if (spec.seed is not None and j == 0) else None,
+                             seed_known if j == 0 else None, spec.check_instability)
+            done = await self.run(task)
+            tally.pids.add(done.pid)
+            outcome = done.value
+            n_new = 0
+            if outcome.seed is not None:
+                got.setdefault(spec.seed, outcome.seed)
+                self.commit_point(species, mult, level, spec.sweep, outcome.seed, tally)
+                n_new += 1
+            for i, p in zip(part, outcome.points):
+                if p is not None:
+                    got[i] = p
+                    self.commit_point(species, mult, level, spec.sweep, p, tally)
+                    n_new += 1
+            if n_new:
+                self._rate[level.key()] = done.seconds / n_new
+            history = outcome.history
+            self._tick(spec.sweep, len(part))
+        return got
+
+    async def probe(self, method, species, target, r_bohr: float, plan, tally: Tally):
+        """One distance of a multiplicity probe: (primary point, secondary point or None)."""
+        level, mult = target.level, target.multiplicity
+        check = plan.instability_check and plan.secondary is not None
+        if check:
+            names = {plan.primary: f"probe/{plan.primary}", plan.secondary: f"probe/{plan.secondary}"}
+        else:
+            names = {plan.primary: f"probe/{plan.reference[plan.primary].lower()}"}
+        p = self.stored_point(species, mult, level, names[plan.primary], r_bohr)
+        q = None
+        if plan.secondary and check:
+            q = self.stored_point(species, mult, level, names[plan.secondary], r_bohr)
+        for name, pt in ((names[plan.primary], p), (names.get(plan.secondary), q)):
+            if pt is not None:
+                tally.count(point_key(species, mult, level, name, r_bohr), False)
+        need_q = check and q is None and (p is None or p.unstable_towards == plan.secondary)
+        if p is None or need_q:
+            done = await self.run(ProbeTask(method, target, r_bohr, plan.primary, plan.secondary if check else None,
+                                            check, p, q))
+            tally.pids.add(done.pid)
+            new_p, new_q = done.value
+            if new_p is not None:
+                p = new_p
+                self.commit_point(species, mult, level, names[plan.primary], p, tally)
+            if new_q is not None:
+                q = new_q
+                self.commit_point(species, mult, level, names[plan.secondary], q, tally)
+            self._tick("probe", 1)
+        return p, q
+
+    # atoms -----------------------------------------------------------------------------------
+
+    async def atoms(self, method, level, states) -> dict:
+        """(symbol, charge, 2S) -> :class:`lcao.methods.AtomResult` for every state, from this run, the
+        store, or computed (each state once per run, whichever curve asks first)."""
+
+        async def one(state):
+            key = (level.key(),) + tuple(state)
+            fut = self._atoms.get(key)
+            if fut is None:
+                fut = self._atoms[key] = asyncio.ensure_future(self._atom(method, level, state))
+            return await fut
+
+        got = await asyncio.gather(*(one(s) for s in dict.fromkeys(states)))
+        return dict(zip(dict.fromkeys(states), got))
+
+    async def _atom(self, method, level, state):
+        symbol, charge, spin = state
+        a = self.store.get_atom(symbol, charge, spin, level)
+        if a is None:
+            a = (await self.run(AtomTask(method, symbol, charge, spin, level))).value
+            self.store.put_atom(a, level)
+        return a
+
+
+def run_sync(coro):
+    """Run a coroutine of this package to its end and return its value, from plain synchronous code.
+
+    In a thread whose event loop is already running (a notebook cell), the coroutine runs on a loop
+    of its own in a helper thread. An interrupt stops the loop; the caller's ``with`` blocks then stop
+    the workers (see :func:`open_session`).
+    """
+    import concurrent.futures
+
+    try:
+        asyncio.get_running_loop()
+    except RuntimeError:
+        return _run(coro)
+    with concurrent.futures.ThreadPoolExecutor(1) as helper:
+        return helper.submit(_run, coro).result()
+
+
+def _run(coro):
+    loop = asyncio.new_event_loop()
+    try:
+        return loop.run_until_complete(coro)
+    finally:
+        pending = [t for t in asyncio.all_tasks(loop) if not t.done()]
+        for t in pending:
+            t.cancel()
+        if pending:
+            loop.run_until_complete(asyncio.gather(*pending, return_exceptions=True))
+        loop.close()
+
+
+class open_session:
+    """``with open_session(store, workers, basis_size, progress) as session``: a :class:`Session` on
+    an executor chosen for the run (:func:`lcao.execute.make_executor`), PySCF and BLAS threads set for
+    this process, and the executor stopped at the end (at once after an error or interrupt).
+
+    ``store`` None uses a throw-away in-memory store; an ``executor`` given is used and left open.
+    """
+
+    def __init__(self, store=None, workers=None, basis_size: int = 0, progress=None, executor=None, tasks=None):
+        self.args = (store, workers, basis_size, progress, executor, tasks)
+        self._stack = None
+
+    def __enter__(self) -> Session:
+        import contextlib
+
+        from ..execute import make_executor
+        from ..store import MemoryStore
+        from ..threads import limited
+
+        store, workers, basis_size, progress, executor, tasks = self.args
+        stack = contextlib.ExitStack()
+        try:
+            if store is None:
+                store = MemoryStore()
+                stack.callback(store.close)
+            if executor is None:
+                executor = make_executor(workers, basis_size, tasks)
+                stack.push(lambda *exc: executor.__exit__(*exc))
+            stack.enter_context(limited(getattr(executor, "threads", 1) if isinstance(executor, SerialExecutor) else 1))
+        except BaseException:
+            stack.close()
+            raise
+        self._stack = stack
+        return Session(store, executor, progress)
+
+    def __exit__(self, *exc):
+        return self._stack.__exit__(*exc)
