@@ -11,9 +11,10 @@ Cases (each measured against its baseline in the same run):
            only, against ``lcao series``;
   slow     (with --slow) a 40-point N2 curve at HF/cc-pVTZ.
 Curve, series and shell cases take the best of ``--repeat`` runs of each side, the sides run in turn, and
-every tool run starts with the process caches cleared (``lcao.pipeline.clear_caches``). Both sides
-run on one thread per process.
-Peak memory is the largest resident set of the process (or of a child process for the shell case).
+every tool run starts with the process caches cleared (``lcao.clear_caches``; each run starts its own
+worker processes). Both sides run on one thread per process.
+Peak memory is the largest resident set of the process or of its worker processes (or of a child
+process and its workers for the shell case).
 """
 
 from __future__ import annotations
@@ -80,7 +81,9 @@ def tool(species, level, mult, r):
 
 
 def peak_mb():
-    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
+    """The largest resident set of this process or of any worker process it has waited for, MB."""
+    return max(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss,
+               resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss) / 1024.0
 
 
 def child_peak_mb():
@@ -124,32 +127,29 @@ def row(case, base_label, tb, tool_label, tt, points, mem):
 
 
 def run_series_case(rows, tmp, repeat: int = 1):
-    """One worker against two, each ``repeat`` times in turn with new stores (the shortest counts),
-    then a rerun of the last two-worker run from its store."""
+    """One worker (everything in this process) against two (a local pool), each ``repeat`` times in
+    turn with new stores (the shortest counts), then a rerun of the last two-worker run from its store."""
     from lcao.levels import parse_level
-    from lcao.parallel import run_parallel
+    from lcao.methods.cache import clear_caches
     from lcao.series import members_from, run_series
     from lcao.store import Store
 
-    from lcao import threads
-    from lcao.pipeline import clear_caches
-
     members = members_from(SERIES, [parse_level("HF/6-31G")], points=40)
+
+    def series(path, workers):
+        with Store(path) as st:
+            return run_series(members, st, workers=workers)
+
     one, two = [], []
     for k in range(max(1, repeat)):
         clear_caches()
-        threads.set_budget(1)  # one worker means one process: no forked sweeps either
-        try:
-            with Store(os.path.join(tmp, f"one-{k}.sqlite")) as st:
-                one.append(timed(run_series, members, st)[0])
-        finally:
-            threads.set_budget(None)
+        one.append(timed(series, os.path.join(tmp, f"one-{k}.sqlite"), 1)[0])
         clear_caches()
         path = os.path.join(tmp, f"two-{k}.sqlite")
-        two.append(timed(run_parallel, members, path, 2)[0])
+        two.append(timed(series, path, 2)[0])
     t1, t2 = min(one), min(two)
     rows.append(row("series 6 x HF/6-31G, 2 workers", "1 worker", t1, "2 workers", t2, 0, peak_mb()))
-    t3, _ = timed(run_parallel, members, path, 2)
+    t3, _ = timed(series, path, 2)
     rows.append(row("series rerun from the store", "first run", two[-1], "rerun", t3, 0, peak_mb()))
 
 

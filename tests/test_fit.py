@@ -194,3 +194,29 @@ def test_isotopologue_masses():
     assert ratio == pytest.approx(0.97772, abs=1e-4)
     d2 = resolve_isotopes(("H", "H"), "2H,2H")
     assert d2.reduced_mass_dalton == pytest.approx(1.00705, abs=1e-4)
+
+
+def test_the_curve_fit_takes_arrays():
+    # synthetic Morse curve with known parameters (analytic): the fit needs no curve object, only arrays
+    from lcao.fit import FitInput, fit_curve
+
+    de, a, re_, e0, mu = 0.2, 1.1, 2.1, -100.0, 12000.0
+    r = np.linspace(1.5, 6.0, 40)
+    e = morse(r, e0, de, a, re_)
+    nan = tuple(np.full(len(r), np.nan))
+    inp = FitInput(tuple(r), tuple(e), "unrestricted", (), (), tuple(r), tuple(e), nan, nan, tuple(e), False,
+                   e0 + de, mu)
+    fit = fit_curve(inp)
+    assert fit.local.re == pytest.approx(re_, abs=1e-3)
+    assert fit.morse.de == pytest.approx(de, rel=1e-6) and fit.morse.a == pytest.approx(a, rel=1e-6)
+    assert fit.de == pytest.approx(de, abs=1e-4)  # limit minus the fitted minimum
+    we = a * np.sqrt(2 * de / mu)  # Morse (1929): omega_e = a sqrt(2 D_e / mu)
+    assert fit.constants["we"] == pytest.approx(we, rel=2e-3)
+    # Morse G(0); the levels are solved on a spline through the 40 points, good to a few parts per thousand
+    assert fit.levels.zpe == pytest.approx(we / 2 - we**2 / (16 * de), rel=5e-3)
+    # a restricted branch that lies 2 mEh above the unrestricted one from 3 bohr on ends the Morse window
+    split = tuple(x + (2e-3 if ri >= 3.0 else 0.0) for ri, x in zip(r, e))
+    cut = fit_curve(FitInput(*[getattr(inp, f) for f in ("well_r", "well_e", "well_branch", "refined_r", "refined_e",
+                                                          "curve_r", "curve_e", "curve_s2")],
+                             split, tuple(e), False, e0 + de, mu))
+    assert "splits" in cut.morse.window_reason and cut.morse.window[1] < 3.0

@@ -81,3 +81,60 @@ def test_store_from_a_newer_schema_is_refused(tmp_path):
     path = store_from_newer_schema(tmp_path / "new.sqlite")
     with pytest.raises(StoreError, match="newer"):
         Store(path)
+
+
+#: the tables of a schema-1 store, as lcao wrote them before warm starts and energy components
+SCHEMA_1 = """
+CREATE TABLE meta (key TEXT PRIMARY KEY, value TEXT NOT NULL);
+CREATE TABLE points (
+    species TEXT NOT NULL, charge INTEGER NOT NULL, multiplicity INTEGER NOT NULL,
+    level TEXT NOT NULL, protocol INTEGER NOT NULL, sweep TEXT NOT NULL, r_key INTEGER NOT NULL,
+    r_bohr REAL NOT NULL, energy REAL, converged INTEGER NOT NULL, cycles INTEGER NOT NULL,
+    s2 REAL, rescue TEXT, stability TEXT, reason TEXT, extra TEXT,
+    dm_shape TEXT NOT NULL, dm BLOB NOT NULL, created TEXT NOT NULL,
+    PRIMARY KEY (species, charge, multiplicity, level, protocol, sweep, r_key)
+);
+CREATE TABLE atoms (
+    symbol TEXT NOT NULL, charge INTEGER NOT NULL, spin INTEGER NOT NULL,
+    level TEXT NOT NULL, protocol INTEGER NOT NULL,
+    energy REAL, converged INTEGER NOT NULL, dm_shape TEXT NOT NULL, dm BLOB NOT NULL, created TEXT NOT NULL,
+    PRIMARY KEY (symbol, charge, spin, level, protocol)
+);
+INSERT INTO meta VALUES ('schema_version', '1');
+"""
+
+
+def test_a_schema_1_store_reads_and_is_upgraded_in_place(tmp_path):
+    import numpy as np
+
+    from lcao.levels import parse_level
+    from lcao.species import parse_species
+
+    path = tmp_path / "old.sqlite"
+    con = sqlite3.connect(path)
+    con.executescript(SCHEMA_1)
+    dm = np.arange(8.0).reshape(2, 2, 2)
+    con.execute("INSERT INTO points VALUES ('H2', 0, 1, 'HF/sto-3g/sph', 1, 'restricted/from-equilibrium', 140000000,"
+                " 1.4, -1.1167, 1, 3, NULL, 'none', 'stable', NULL, ?, '[2, 2, 2]', ?, 'then')",
+                (json.dumps({"uhf_unstable": True}), dm.tobytes()))
+    con.execute("INSERT INTO atoms VALUES ('H', 0, 1, 'HF/sto-3g/sph', 1, -0.466, 1, '[2, 1, 1]', ?, 'then')",
+                (np.array([1.0, 0.0]).tobytes(),))
+    con.commit()
+    con.close()
+    sp, lv = parse_species("H2"), parse_level("HF/STO-3G")
+    with Store(path, read_only=True) as ro:  # read as it is, nothing changed
+        p = ro.get_point(sp, 1, lv, "restricted/from-equilibrium", 1.4)
+        assert ro.schema == 1 and p.energy == -1.1167 and np.array_equal(p.warm["dm"], dm)
+        assert p.unstable_towards == "unrestricted" and p.components == {}
+    with Store(path) as st:  # opened for writing: upgraded, old rows intact, new rows complete
+        assert st.schema == 2
+        a = st.get_atom("H", 0, 1, lv)
+        assert a.energy_hartree == -0.466 and a.warm["dm"].shape == (2, 1, 1)
+        st.put_point(sp, 1, lv, "restricted/from-equilibrium",
+                     p.__class__(1.5, -1.11, True, 4, components={"reference": -1.11}, warm={"dm": dm, "t": np.ones(3)}))
+        q = st.get_point(sp, 1, lv, "restricted/from-equilibrium", 1.5)
+        assert q.components == {"reference": -1.11} and np.array_equal(q.warm["t"], np.ones(3))
+        assert np.array_equal(st.get_point(sp, 1, lv, "restricted/from-equilibrium", 1.4).warm["dm"], dm)
+    con = sqlite3.connect(path)
+    assert con.execute("SELECT value FROM meta WHERE key='schema_version'").fetchone()[0] == "2"
+    con.close()
