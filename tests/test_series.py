@@ -165,8 +165,8 @@ def test_large_basis_members_run_here_on_threads_and_the_rest_on_processes(tmp_p
     made = []
     real = execute.make_executor
 
-    def recording(workers=None, basis_size=0, tasks=None):
-        ex = real(workers, basis_size, tasks)
+    def recording(workers=None, basis_size=0):
+        ex = real(workers, basis_size)
         made.append((basis_size, type(ex).__name__, getattr(ex, "threads", None)))
         return ex
 

@@ -14,20 +14,17 @@ from .serial import SerialExecutor
 __all__ = ["Executor", "LocalProcessExecutor", "SerialExecutor", "fork_safe", "make_executor"]
 
 
-def make_executor(workers: int | None = None, basis_size: int = 0, tasks: int | None = None) -> Executor:
+def make_executor(workers: int | None = None, basis_size: int = 0) -> Executor:
     """The executor for a run.
 
     Args:
         workers: processes to use (None: the cores of this machine, :func:`lcao.threads.cores`).
         basis_size: the largest molecule's basis functions: from
             :data:`lcao.threads.THREADED_FROM_NAO` the run stays in this process on every core.
-        tasks: an upper bound on the tasks that can run at once (no more workers are started).
     """
     from ..threads import THREADED_FROM_NAO, cores
 
     n = cores() if workers is None else int(workers)
-    if tasks is not None:
-        n = min(n, max(1, tasks))
     if basis_size >= THREADED_FROM_NAO:
         return SerialExecutor(threads=n)
     if n <= 1:

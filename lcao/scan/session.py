@@ -10,6 +10,7 @@ the tasks in flight and a rerun computes only what is missing.
 from __future__ import annotations
 
 import asyncio
+import contextlib
 import logging
 from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass, field
@@ -264,40 +265,22 @@ def _run(coro):
         loop.close()
 
 
-class open_session:
-    """``with open_session(store, workers, basis_size, progress) as session``: a :class:`Session` on
-    an executor chosen for the run (:func:`lcao.execute.make_executor`), PySCF and BLAS threads set for
-    this process, and the executor stopped at the end (at once after an error or interrupt).
+@contextlib.contextmanager
+def open_session(store=None, workers=None, basis_size: int = 0, progress=None, executor=None):
+    """``with open_session(store, workers, basis_size, progress) as session``: a :class:`Session` on an
+    executor chosen for the run (:func:`lcao.execute.make_executor`), PySCF and BLAS threads set for this
+    process, and the executor stopped at the end (at once after an error or an interrupt).
 
     ``store`` None uses a throw-away in-memory store; an ``executor`` given is used and left open.
     """
+    from ..execute import make_executor
+    from ..store import MemoryStore
+    from ..threads import limited
 
-    def __init__(self, store=None, workers=None, basis_size: int = 0, progress=None, executor=None, tasks=None):
-        self.args = (store, workers, basis_size, progress, executor, tasks)
-        self._stack = None
-
-    def __enter__(self) -> Session:
-        import contextlib
-
-        from ..execute import make_executor
-        from ..store import MemoryStore
-        from ..threads import limited
-
-        store, workers, basis_size, progress, executor, tasks = self.args
-        stack = contextlib.ExitStack()
-        try:
-            if store is None:
-                store = MemoryStore()
-                stack.callback(store.close)
-            if executor is None:
-                executor = make_executor(workers, basis_size, tasks)
-                stack.push(lambda *exc: executor.__exit__(*exc))
-            stack.enter_context(limited(getattr(executor, "threads", 1) if isinstance(executor, SerialExecutor) else 1))
-        except BaseException:
-            stack.close()
-            raise
-        self._stack = stack
-        return Session(store, executor, progress)
-
-    def __exit__(self, *exc):
-        return self._stack.__exit__(*exc)
+    with contextlib.ExitStack() as stack:
+        if store is None:
+            store = stack.enter_context(MemoryStore())
+        if executor is None:
+            executor = stack.enter_context(make_executor(workers, basis_size))
+        stack.enter_context(limited(executor.threads if isinstance(executor, SerialExecutor) else 1))
+        yield Session(store, executor, progress)
