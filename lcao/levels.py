@@ -35,20 +35,41 @@ class Level:
     """A level of theory.
 
     Attributes:
-        method: canonical method name, registered in :mod:`lcao.methods` (``'HF'``).
-        basis: basis name as PySCF reads it (``'6-31G*'``).
+        method: canonical method name, registered in :mod:`lcao.methods` (``'HF'``, ``'CCSD(T)'``,
+            ``'B3LYP'``).
+        basis: basis name as PySCF reads it (``'6-31G*'``), or a basis-set extrapolation
+            ``'CBS(cc-pVTZ,cc-pVQZ)'`` (:func:`cbs_pair`).
         cartesian: Cartesian (True) or spherical (False) d and higher shells.
         cartesian_source: ``'convention'`` or ``'user'``.
+        frozen_core: the atoms' noble-gas cores left out of the correlation (True, the default of
+            correlated methods) or not (False); None where it does not apply (Hartree-Fock, DFT).
     """
 
     method: str
     basis: str
     cartesian: bool
     cartesian_source: str = "convention"
+    frozen_core: bool | None = None
 
     @property
     def text(self) -> str:
         return f"{self.method}/{self.basis}"
+
+    @property
+    def cbs(self):
+        """(smaller basis, larger basis, X, Y) of a basis-set extrapolation, else None."""
+        return cbs_pair(self.basis)
+
+    def with_basis(self, basis: str) -> "Level":
+        """The same method and settings in another basis (a component of an extrapolation)."""
+        from dataclasses import replace
+
+        return replace(self, basis=basis)
+
+    @property
+    def electrons_text(self) -> str:
+        """'frozen core', 'all electrons' or '' where it does not apply."""
+        return {True: "frozen core", False: "all electrons"}.get(self.frozen_core, "")
 
     @property
     def shells_text(self) -> str:
@@ -62,16 +83,58 @@ class Level:
 
     def key(self) -> str:
         """The text that identifies the level in the results store."""
-        return f"{self.method}/{self.basis.lower()}/{'cart' if self.cartesian else 'sph'}"
+        tail = "/ae" if self.frozen_core is False else ""
+        return f"{self.method}/{self.basis.lower()}/{'cart' if self.cartesian else 'sph'}{tail}"
 
     def as_dict(self) -> dict:
-        return {
+        out = {
             "text": self.text,
             "method": self.method,
             "basis": self.basis,
             "d_shells": "cartesian" if self.cartesian else "spherical",
             "d_shells_source": self.cartesian_source,
         }
+        if self.frozen_core is not None:
+            out["correlated_electrons"] = self.electrons_text
+        return out
+
+
+_CBS = re.compile(r"^CBS\(\s*([^,()]+?)\s*,\s*([^,()]+?)\s*\)$", re.IGNORECASE)
+#: correlation-consistent basis names and their cardinal number (D=2, T=3, Q=4, 5, 6)
+_CC_NAME = re.compile(r"^(?P<pre>(?:d-|t-)?(?:aug-)?cc-p(?:w?C)?V)(?P<x>[DTQ56])Z(?P<post>.*)$", re.IGNORECASE)
+_CARDINAL = {"D": 2, "T": 3, "Q": 4, "5": 5, "6": 6}
+
+
+def cardinal_number(basis: str) -> tuple[str, int] | None:
+    """(family, cardinal number) of a correlation-consistent basis: 'cc-pVTZ' -> ('cc-pV?Z', 3)."""
+    m = _CC_NAME.match(basis.strip())
+    if not m:
+        return None
+    return (m.group("pre").lower() + "?Z" + m.group("post").lower(), _CARDINAL[m.group("x").upper()])
+
+
+def cbs_pair(basis: str):
+    """(smaller, larger, X, Y) of ``CBS(b1,b2)``, or None for an ordinary basis name.
+
+    Raises:
+        LevelError: the two bases are not a pair of one correlation-consistent family with different
+            cardinal numbers.
+    """
+    m = _CBS.match(basis.strip())
+    if not m:
+        if basis.strip().upper().startswith("CBS"):
+            raise LevelError(f"write a basis-set extrapolation as CBS(cc-pVTZ,cc-pVQZ), got {basis!r}")
+        return None
+    a, b = m.group(1), m.group(2)
+    ca, cb = cardinal_number(a), cardinal_number(b)
+    if ca is None or cb is None:
+        bad = a if ca is None else b
+        raise LevelError(f"{bad!r} has no cardinal number: CBS needs two correlation-consistent bases of one"
+                         " family, e.g. CBS(cc-pVTZ,cc-pVQZ)")
+    if ca[0] != cb[0] or ca[1] == cb[1]:
+        raise LevelError(f"CBS({a},{b}) is not a cardinal-number pair: use two bases of one correlation-consistent"
+                         " family with different cardinal numbers, e.g. CBS(cc-pVTZ,cc-pVQZ)")
+    return (a, b, ca[1], cb[1]) if ca[1] < cb[1] else (b, a, cb[1], ca[1])
 
 
 @lru_cache(maxsize=1)
@@ -81,34 +144,50 @@ def _known_basis_names() -> tuple[str, ...]:
     return tuple(sorted(basis.ALIAS))
 
 
-def parse_level(text: str, cartesian: bool | None = None) -> Level:
+def parse_level(text: str, cartesian: bool | None = None, frozen_core: bool | None = None) -> Level:
     """Parse ``METHOD/BASIS``.
 
     Args:
-        text: e.g. ``'HF/6-31G*'``; the method is case-insensitive.
+        text: e.g. ``'HF/6-31G*'``, ``'CCSD(T)/cc-pVTZ'``, ``'B3LYP/6-31G*'``,
+            ``'CCSD(T)/CBS(cc-pVTZ,cc-pVQZ)'``; the method is case-insensitive.
         cartesian: override the d-shell convention (None keeps it).
+        frozen_core: for correlated methods, False correlates every electron (default: frozen core).
 
     Raises:
-        LevelError: unknown method or basis (with the nearest names).
+        LevelError: unknown method or basis (with the nearest names), a CBS level that is not a
+            cardinal-number pair, or an option the method does not take.
     """
+    from .methods import method_named, suggestions
+
     if not isinstance(text, str) or "/" not in text:
         raise LevelError(f"level must be written METHOD/BASIS, e.g. HF/6-31G, got {text!r}")
     method, _, basis = text.strip().partition("/")
-    from .methods import known_methods
-
     method = method.strip().upper()
     basis = basis.strip()
-    names = known_methods()
-    if method not in names:
-        near = difflib.get_close_matches(method, names, n=3, cutoff=0.4)
+    family = method_named(method)
+    if family is None:
+        near = suggestions(method)
         hint = f"; nearest: {', '.join(near)}" if near else ""
-        raise LevelError(f"unknown method {method!r}{hint}; allowed: {', '.join(names)}")
+        raise LevelError(f"unknown method or functional {method!r}{hint}")
+    family.check_name(method)
     if not basis:
         raise LevelError(f"level {text!r} names no basis; e.g. {method}/STO-3G")
-    check_basis_name(basis)
+    pair = cbs_pair(basis)
+    if pair is not None and not getattr(family, "extrapolates", False):
+        raise LevelError(f"a basis-set extrapolation applies to correlated methods (MP2, CCSD, CCSD(T)), not {method}")
+    for name in (pair[:2] if pair else (basis,)):
+        check_basis_name(name)
+    fc = family.frozen_core_default(method)
+    if frozen_core is not None:
+        if fc is None and frozen_core is False:
+            raise LevelError(f"{method} correlates no electrons separately: all-electron applies to MP2 and coupled cluster")
+        if fc is not None:
+            fc = bool(frozen_core)
+    names = pair[:2] if pair else (basis,)
     if cartesian is None:
-        return Level(method, basis, cartesian_by_convention(basis), "convention")
-    return Level(method, basis, bool(cartesian), "user")
+        conv = {cartesian_by_convention(b) for b in names}
+        return Level(method, basis, conv.pop() if len(conv) == 1 else False, "convention", fc)
+    return Level(method, basis, bool(cartesian), "user", fc)
 
 
 def _normalise(name: str) -> str:
@@ -161,15 +240,17 @@ def _display_name(key: str) -> str:
 
 
 def check_basis_covers(level: Level, symbols) -> None:
-    """Raise LevelError naming the element and basis if the basis lacks an element."""
+    """Raise LevelError naming the element and basis if the basis (either of an extrapolation) lacks an element."""
     from pyscf.gto import basis as _b
 
-    for sym in dict.fromkeys(symbols):
-        try:
-            with warnings.catch_warnings():
-                warnings.simplefilter("ignore")
-                shells = _b.load(level.basis, sym)
-        except Exception:
-            shells = None
-        if not shells:
-            raise LevelError(f"basis {level.basis} has no functions for {sym}")
+    pair = level.cbs
+    for name in (pair[:2] if pair else (level.basis,)):
+        for sym in dict.fromkeys(symbols):
+            try:
+                with warnings.catch_warnings():
+                    warnings.simplefilter("ignore")
+                    shells = _b.load(name, sym)
+            except Exception:
+                shells = None
+            if not shells:
+                raise LevelError(f"basis {name} has no functions for {sym}")

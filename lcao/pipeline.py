@@ -25,12 +25,9 @@ from .species import Species, parse_species
 
 log = logging.getLogger(__name__)
 
-CAUTION = (
-    "Hartree-Fock energies, and minimal-basis ones above all, are qualitative: dissociation energies at this"
-    " level can be badly wrong (often a large fraction too small, or no binding at all). Results that feed a"
-    " process, kinetics or safety model need validated data (evaluated tables, higher-level calculations)"
-    " and the judgement of licensed practice."
-)
+def caution_for(level) -> str:
+    """The caution for numbers at ``level`` (each method words its own, see :meth:`lcao.methods.Method.caution`)."""
+    return method_for(level).caution(level)
 
 
 @dataclass(frozen=True)
@@ -68,6 +65,9 @@ class CurveResult:
     refined: tuple = ()
     warnings: tuple[str, ...] = field(default=())
     execution: dict = field(default_factory=dict)
+    #: the higher level of the well and separated atoms, with its scan about the minimum (or None)
+    well_level: Level | None = None
+    well_scan: ScanResult | None = None
 
     @property
     def points(self) -> tuple[CurvePoint, ...]:
@@ -84,6 +84,10 @@ class CurveResult:
     def lowest_point(self) -> CurvePoint | None:
         good = self.trusted_points
         return min(good, key=lambda p: p.energy_hartree) if good else None
+
+    @property
+    def caution(self) -> str:
+        return caution_for(self.level)
 
 
 def resolve_inputs(species, level, grid=None, multiplicity=None, charge=None, points=None):
@@ -122,7 +126,7 @@ def _check_electrons_fit(sp: Species, lv: Level) -> None:
 def curve(species, level, grid: Grid | None = None, *, multiplicity: int | None = None, charge: int | None = None,
           points: int | None = None, store=None, fit: bool = True, isotopes: str | None = None,
           analyse_points: bool = True, refine: bool = True, progress=None, workers: int | None = None,
-          executor=None) -> CurveResult:
+          executor=None, well_level=None) -> CurveResult:
     """Compute a potential-energy curve with the state-following protocol.
 
     Args:
@@ -140,6 +144,8 @@ def curve(species, level, grid: Grid | None = None, *, multiplicity: int | None 
         progress: optional callable(label, points) after each finished task.
         workers: processes (default: this process's share of the cores; 1 keeps everything here).
         executor: an :class:`lcao.execute.Executor` to run on (it stays open), instead of ``workers``.
+        well_level: a higher level (text or :class:`Level`) for the well and the separated atoms: r_e,
+            the vibrational and rotational constants and D_e come from it (:mod:`lcao.scan.well`).
 
     Returns:
         CurveResult
@@ -152,13 +158,18 @@ def curve(species, level, grid: Grid | None = None, *, multiplicity: int | None 
     from .masses import resolve_isotopes
 
     sp, lv, gr = resolve_inputs(species, level, grid, multiplicity, charge, points)
+    wl = None
+    if well_level is not None:
+        _, wl, _ = resolve_inputs(sp, well_level, gr, multiplicity)
     iso = resolve_isotopes(sp.atoms, isotopes)
-    with open_session(store, workers, basis_size(sp, lv), progress, executor) as session:
+    size = max(basis_size(sp, lv), basis_size(sp, wl) if wl is not None else 0)
+    with open_session(store, workers, size, progress, executor) as session:
         return run_sync(curve_async(session, sp, lv, gr, multiplicity, iso, fit=fit, analyse_points=analyse_points,
-                                    refine=refine))
+                                    refine=refine, well_level=wl))
 
 
-async def curve_async(session, sp, lv, gr, multiplicity, iso, *, fit=True, analyse_points=True, refine=True) -> CurveResult:
+async def curve_async(session, sp, lv, gr, multiplicity, iso, *, fit=True, analyse_points=True, refine=True,
+                      well_level=None) -> CurveResult:
     """The work of :func:`curve` on a session (inputs already resolved)."""
     from .scan import protocol
 
@@ -176,23 +187,48 @@ async def curve_async(session, sp, lv, gr, multiplicity, iso, *, fit=True, analy
     sc, refined, summaries = await protocol.scan(
         session, method, sp, target, gr.r_bohr, tally, refine_points=fit and refine,
         analyse=analyse_points and method.capabilities.orbitals, parts=max(1, session.executor.workers))
+    well = None
+    if well_level is not None and fit:
+        from .scan.on_reference import well_minimum
+        from .scan.well import well_scan
+
+        centre = well_minimum(sc.result)
+        if centre is not None:
+            if refined:
+                from .fit.local import local_fit
+
+                good = [p for p in refined if p.trusted]
+                if len(good) >= 5:
+                    centre = (local_fit([p.r_bohr for p in good], [p.energy_hartree for p in good]).re, centre[1])
+            well = await well_scan(session, sp, well_level, mult, centre[0], tally)
     execution = {**session.executor.describe(), "processes_used": len(tally.pids | probes.pids)}
     result = CurveResult(sp, lv, gr, mult, source, trials, sc.result, isotopes=iso,
                          computed=tally.computed + probes.computed, reused=tally.reused + probes.reused,
-                         along=tuple(summaries), refined=tuple(refined), execution=execution)
-    return _with_fit(result) if fit else result
+                         along=tuple(summaries), refined=tuple(refined), execution=execution,
+                         well_level=well_level, well_scan=well[0] if well else None)
+    return _with_fit(result, well[1] if well else None) if fit else result
 
 
-def _with_fit(result: CurveResult) -> CurveResult:
+def _with_fit(result: CurveResult, well_points=None) -> CurveResult:
     from .errors import FitError
-    from .fit import fit_curve
+    from .fit import fit_curve, with_well_level
+    from .fit.spin_orbit import correction
     from .scan.assemble import fit_input
 
     try:
         f = fit_curve(fit_input(result.scan, result.refined, result.isotopes, result.species.atoms))
     except FitError as exc:
         return replace(result, fit_error=str(exc))
-    return replace(result, fit=f)
+    if result.well_level is not None:
+        if not well_points:
+            return replace(result, fit_error=f"no trusted points of the well at {result.well_level.text}")
+        try:
+            f = with_well_level(f, [p.r_bohr for p in well_points], [p.energy_hartree for p in well_points],
+                                result.well_scan.limit.energy_hartree, result.well_level.text, result.level.text)
+        except FitError as exc:
+            return replace(result, fit_error=f"the well at {result.well_level.text}: {exc}")
+    limit = result.well_scan.limit if result.well_scan is not None else result.scan.limit
+    return replace(result, fit=replace(f, spin_orbit=correction([(a.symbol, a.charge) for a in limit.atoms])))
 
 
 @dataclass(frozen=True)

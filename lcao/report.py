@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import math
 
-from .pipeline import CAUTION, CurveResult
+from .pipeline import CurveResult
 
 
 def summary_lines(result: CurveResult) -> list[str]:
@@ -13,9 +13,15 @@ def summary_lines(result: CurveResult) -> list[str]:
 
     sp, lv = result.species, result.level
     lines = [
-        f"{sp.label}  {lv.text}  ({lv.shells_text})  multiplicity {result.multiplicity}"
-        f" ({result.multiplicity_source})  reference {result.scan.reference}",
+        f"{sp.label}  {lv.text}  ({lv.shells_text}{', ' + lv.electrons_text if lv.electrons_text else ''})"
+        f"  multiplicity {result.multiplicity} ({result.multiplicity_source})  reference {result.scan.reference}",
     ]
+    lines += level_lines(lv)
+    if result.well_level is not None:
+        wl = result.well_level
+        lines.append(f"  well and separated atoms at {wl.text} ({wl.shells_text}"
+                     f"{', ' + wl.electrons_text if wl.electrons_text else ''})")
+        lines += level_lines(wl)
     if result.candidates:
         lines.append(
             "  multiplicities tried (lowest energy over the probe distances): "
@@ -47,8 +53,29 @@ def summary_lines(result: CurveResult) -> list[str]:
         lines.append(f"  note: {note}")
     if result.fit_error:
         lines.append(f"  no fit: {result.fit_error}")
-    lines.append(f"  caution: {CAUTION}")
+    lines.append(f"  caution: {result.caution}")
     return lines
+
+
+def level_lines(level) -> list[str]:
+    """What the level computes beyond its name: the functional as evaluated, the grid, an extrapolation."""
+    from .methods import method_for
+
+    d = method_for(level).describe(level)
+    out = []
+    f = d.get("functional")
+    if f:
+        comps = " + ".join(f"{c['weight']:g} {c['libxc']}" for c in f["libxc_components"]) or "none"
+        out.append(f"  functional {f['name']} as PySCF evaluates it: {comps}; exact exchange {f['exact_exchange_fraction']:g}"
+                   + (f", range separation omega {f['range_separation']['omega']:g}" if f["range_separation"]["omega"] else "")
+                   + f"; grid level {d['grid']['pyscf_grid_level']}")
+        if f.get("note"):
+            out.append(f"  note: {f['note']}")
+    x = d.get("extrapolation")
+    if x:
+        out.append(f"  basis-set extrapolation {x['bases'][0]} -> {x['bases'][1]}: correlation {x['correlation']};"
+                   f" {x['hartree_fock']}")
+    return out
 
 
 def _ang(r_bohr: float) -> float:
@@ -63,7 +90,7 @@ def fit_lines(result: CurveResult) -> list[str]:
 
     from .export.fit_fields import fit_document
 
-    d = fit_document(result.fit)
+    d = fit_document(result.fit, result.caution)
     ref = handbook_row(result.species.label) if result.multiplicity == _handbook_mult(result) else None
 
     def cmp(key, value, fmt):
@@ -84,9 +111,20 @@ def fit_lines(result: CurveResult) -> list[str]:
         lines.append(f"    not bound at this level: the minimum lies {d['minimum_above_limit_ev']:.3f} eV above the separated atoms")
         return lines
     lines.append(f"    D_e (separated atoms, same level) {d['de_ev']:.3f} eV;  D_0 = D_e - ZPE {d['d0_ev']:.3f} eV" + cmp("d0_ev", d["d0_ev"], ".3f"))
+    so = d["spin_orbit"]
+    if so is not None and so["correction_ev"]:
+        lines.append(f"    atomic spin-orbit term {so['correction_ev']:+.4f} eV: D_e {so['de_ev']:.3f} eV, D_0 {so['d0_ev']:.3f} eV"
+                     + cmp("d0_ev", so["d0_ev"], ".3f"))
+    elif so is not None and so["correction_ev"] is None:
+        lines.append("    atomic spin-orbit term not available: " + ", ".join(a["atom"] for a in so["atoms"] if a["shift_cm1"] is None)
+                     + " has no fine-structure data shipped")
     if d["zpe_cm1"] is not None:
         vl = d["vibrational_levels"]
-        lines.append(f"    ZPE {d['zpe_cm1']:.1f} cm-1; {vl['n_bound'] if vl else '?'} bound vibrational levels")
+        lines.append(f"    ZPE {d['zpe_cm1']:.1f} cm-1 ({d['zpe_source']}); {vl['n_bound'] if vl else '?'} bound vibrational"
+                     " levels" + (f" at {d['sources']['vibrational_levels']}" if d["sources"] else ""))
+    if d["sources"]:
+        lines.append(f"    r_e, omega_e, omega_e x_e, B_e, alpha_e, D_e and ZPE from {d['sources']['re']}; the Morse model"
+                     f" and the vibrational levels from {d['sources']['morse']}")
     m = d["morse"]
     if m is not None:
         lines.append(
@@ -97,7 +135,7 @@ def fit_lines(result: CurveResult) -> list[str]:
         )
     elif d["morse_error"]:
         lines.append(f"    no Morse fit: {d['morse_error']}")
-    lines.append(f"    D_e caution: {d['caution']}")
+    lines.append(f"    {d['de_note']}")
     return lines
 
 

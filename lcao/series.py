@@ -82,6 +82,7 @@ class Member:
     grid: object = None
     multiplicity: int | None = None
     points: int | None = None
+    well_level: Level | None = None
 
 
 @dataclass(frozen=True)
@@ -150,8 +151,10 @@ async def run_member_async(session, member: Member) -> SeriesRow:
     hb = _handbook(sp)
     try:
         sp, lv, grid = resolve_inputs(sp, lv, member.grid, member.multiplicity, None, member.points)
+        if member.well_level is not None:
+            resolve_inputs(sp, member.well_level, grid, member.multiplicity)
         res = await curve_async(session, sp, lv, grid, member.multiplicity, resolve_isotopes(sp.atoms),
-                                analyse_points=False)
+                                analyse_points=False, well_level=member.well_level)
     except LcaoError as exc:
         return SeriesRow(sp.label, lv.text, "failed", str(exc), handbook=hb)
     common = dict(multiplicity=res.multiplicity, reference=res.scan.reference, points=len(res.points),
@@ -181,9 +184,18 @@ def expected_cost(member: Member) -> float:
     per charge placement) and more candidate multiplicities to probe cost more."""
     from .atoms import charge_placements
 
+    from .methods import method_for
+    from .methods.base import Target
+
     points = len(member.grid.r_bohr) if member.grid is not None else (member.points or 40)
     probes = 1 if member.multiplicity is not None else len(member.species.multiplicity_candidates())
-    return points * (1 + len(charge_placements(member.species))) * (1 + 0.3 * probes)
+    sp, lv = member.species, member.level
+    try:
+        m = method_for(lv)
+        each = m.seconds_per_point(m.basis_size(Target(sp.atoms, sp.charge, sp.lowest_multiplicity(), lv)))
+    except Exception:  # a member that will fail as a row (a basis lacking an element)
+        each = 0.0
+    return points * (1 + len(charge_placements(sp))) * (1 + 0.3 * probes) * max(each, 1e-3)
 
 
 def member_basis_size(member: Member) -> int:
@@ -232,11 +244,12 @@ def run_series(members, store=None, *, workers: int | None = None, progress=None
     return tuple(rows)
 
 
-def members_from(species_texts, levels, grid=None, multiplicity=None, points=None) -> list[Member]:
-    """Members for every species x level (species as text or Species)."""
+def members_from(species_texts, levels, grid=None, multiplicity=None, points=None, well_level=None) -> list[Member]:
+    """Members for every species x level (species as text or Species); ``well_level`` computes each
+    member's well and atoms at that level (:mod:`lcao.scan.well`)."""
     out = []
     for t in species_texts:
         sp = t if isinstance(t, Species) else parse_species(t)
         for lv in levels:
-            out.append(Member(sp, lv, grid, multiplicity, points))
+            out.append(Member(sp, lv, grid, multiplicity, points, well_level))
     return out

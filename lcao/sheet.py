@@ -32,9 +32,9 @@ DEFAULT_T_GRID = tuple(float(x) for x in np.concatenate([[200.0, 250.0, 298.15],
 HYDROGEN_NUCLEAR_SPIN = {1: 0.5, 2: 1.0, 3: 0.5}
 
 SHEET_CAUTION = (
-    "Dissociation energies from Hartree-Fock, and minimal-basis ones above all, are not fit for rate constants,"
-    " equilibrium constants or safety margins without validation against evaluated data; use the handbook"
-    " source or validated values for D_0 and the enthalpy of formation."
+    "Computed dissociation energies and the enthalpies of formation derived from them are for screening: they are"
+    " not fit for rate constants, equilibrium constants or safety margins without validation against evaluated"
+    " data; use the handbook source or validated values for D_0 and the enthalpy of formation."
 )
 
 
@@ -87,14 +87,15 @@ class Sheet:
     warnings: tuple = field(default=())
 
 
-def _computed_constants(species, level, multiplicity, grid, store, isotopes, workers=None, progress=None):
+def _computed_constants(species, level, multiplicity, grid, store, isotopes, workers=None, progress=None,
+                        well_level=None):
     from .masses import resolve_isotopes
     from .pipeline import basis_size, curve_async, orbitals_async
     from .scan.session import open_session, run_sync
 
     async def both(session):
         res = await curve_async(session, species, level, grid, multiplicity, resolve_isotopes(species.atoms, isotopes),
-                                analyse_points=False)
+                                analyse_points=False, well_level=well_level)
         if res.fit is None:
             raise InputError(f"no fitted constants for {res.species.label} at {res.level.text}: {res.fit_error}")
         orb = await orbitals_async(session, species, level, at_minimum=True, multiplicity=res.multiplicity, grid=grid,
@@ -181,11 +182,12 @@ def build_sheet(
     t_grid=DEFAULT_T_GRID,
     workers: int | None = None,
     progress=None,
+    well_level=None,
 ) -> Sheet:
     """Build the parameter sheet of one species (see the module docstring)."""
     from . import __version__
     from .masses import resolve_isotopes
-    from .pipeline import CAUTION, resolve_inputs
+    from .pipeline import caution_for, resolve_inputs
     from .species import Species, parse_species
     from .thermo import MoleculeConstants, fit_nasa, thermo_table
 
@@ -201,8 +203,10 @@ def build_sheet(
         if level is None:
             raise InputError("a computed sheet needs a level of theory (--level)")
         sp, lv, grid = resolve_inputs(sp, level, grid, multiplicity, None, points)
+        if well_level is not None:
+            _, well_level, _ = resolve_inputs(sp, well_level, grid, multiplicity)
         cvals, cprov, levels_cm1, cw, _res = _computed_constants(sp, lv, multiplicity, grid, store, isotopes, workers,
-                                                                 progress)
+                                                                 progress, well_level)
         vals.update(cvals)
         field_sources.update({k: "computed" for k, v in cvals.items() if v is not None})
         prov.update(cprov)
@@ -294,7 +298,7 @@ def build_sheet(
         dhf298=dhf_note,
         standard_pressure_bar=1.0,
         warnings=warns,
-        caution=CAUTION + " " + SHEET_CAUTION,
+        caution=(caution_for(lv) + " " if source != "handbook" else "") + SHEET_CAUTION,
     )
     return Sheet(rec, prov, levels_cm1, table, nasa, tuple(warns))
 
@@ -322,7 +326,8 @@ def derived_dhf298(sp, vals, molc) -> tuple[float, str]:
     dhf = sum(table[s]["dhf298_kj_per_mol"] for s in sp.atoms) - d0_kj - h_atoms + h_mol
     note = (
         f"enthalpy of formation derived from D_0 = {d0_kj:.1f} kJ/mol and the atoms' CODATA values: it inherits"
-        " the whole error of D_0, which at Hartree-Fock is typically hundreds of kJ/mol; supply a validated value"
+        " the whole error of D_0 at this level (hundreds of kJ/mol at Hartree-Fock, a few at CCSD(T) near the basis-set"
+        " limit); supply a validated value"
         " with --dhf298 for any real use (atoms' H298 - H0 taken as 5/2 RT, good to about 1 kJ/mol)"
     )
     return float(dhf), note

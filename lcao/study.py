@@ -9,9 +9,10 @@ Top level::
     title = "..."            # text, optional
     out = "results"          # output folder, relative to the study file (default: <file stem>-results)
     store = "store.sqlite"   # results store, relative to the study file (default: <out>/lcao-store.sqlite)
-    [defaults]               # optional: levels, points, from, to, d_shells
+    [defaults]               # optional: levels, points, from, to, d_shells, well_level, all_electron
     [[group]]                # one or more: name and either species or electrons + elements (+ charges),
-                             # optionally levels, points, from, to, d_shells, multiplicity
+                             # optionally levels, points, from, to, d_shells, well_level,
+                             # all_electron, multiplicity
 """
 
 from __future__ import annotations
@@ -23,7 +24,8 @@ from dataclasses import dataclass
 from .errors import InputError
 
 TOP_KEYS = {"title": str, "out": str, "store": str, "defaults": dict, "group": list}
-SETTING_KEYS = {"levels": list, "points": int, "from": (int, float), "to": (int, float), "d_shells": str}
+SETTING_KEYS = {"levels": list, "points": int, "from": (int, float), "to": (int, float), "d_shells": str,
+                "well_level": str, "all_electron": bool}
 GROUP_KEYS = {"name": str, "species": list, "electrons": int, "elements": list, "charges": (str, list), "multiplicity": dict, **SETTING_KEYS}
 
 
@@ -110,8 +112,10 @@ def load_study(path) -> Study:
             if s["d_shells"] not in ("cartesian", "spherical"):
                 raise StudyError(f"{where}: d_shells must be 'cartesian' or 'spherical', got {s['d_shells']!r}")
             cart = s["d_shells"] == "cartesian"
+        fc = False if s.get("all_electron") else None
         try:
-            levels = [parse_level(t, cart) for t in level_texts]
+            levels = [parse_level(t, cart, fc) for t in level_texts]
+            well = parse_level(s["well_level"], cart, fc) if s.get("well_level") else None
         except InputError as exc:
             raise StudyError(f"{where}: {exc}") from None
         grid = None
@@ -140,7 +144,7 @@ def load_study(path) -> Study:
                 m = mults.get(sp.label)
                 if m is not None:
                     sp.check_multiplicity(m)
-                members += members_from([sp], levels, grid, m, None if grid else s.get("points"))
+                members += members_from([sp], levels, grid, m, None if grid else s.get("points"), well)
             unknown = set(mults) - {sp.label for sp in species}
             if unknown:
                 raise StudyError(f"{where}: multiplicity given for {', '.join(sorted(unknown))}, which is not in the group")

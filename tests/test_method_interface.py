@@ -113,7 +113,7 @@ def test_registration_is_checked(second_order):
     with pytest.raises(ValueError, match="already registered"):
         register(SecondOrder())
     unregister(second_order)
-    with pytest.raises(LevelError, match="unknown method 'TESTMP2'"):
+    with pytest.raises(LevelError, match="unknown method or functional 'TESTMP2'"):
         parse_level("TESTMP2/STO-3G")
     register(second_order)
 

@@ -30,20 +30,33 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
     add_workers_option(p)
 
 
-def add_level_options(p) -> None:
+def add_level_options(p, well: bool = True) -> None:
     g = p.add_argument_group("level of theory and state")
-    g.add_argument("--level", default="HF/6-31G", help="METHOD/BASIS, e.g. HF/STO-3G, UHF/6-31G*, ROHF/cc-pVDZ (default HF/6-31G)")
-    g.add_argument(
-        "--d-shells",
-        choices=("cartesian", "spherical"),
-        help="override the basis set's d-shell convention (Pople 6-31G sets cartesian, others spherical)",
-    )
+    g.add_argument("--level", default="HF/6-31G",
+                   help="METHOD/BASIS: HF, RHF, UHF, ROHF; MP2, CCSD, CCSD(T) (R/U prefix for one reference); a"
+                        " density functional by name (B3LYP, PBE0, M06-2X, ...); a basis-set extrapolation"
+                        " CBS(cc-pVTZ,cc-pVQZ) for the correlated ones (default HF/6-31G)")
+    add_level_modifiers(g, well)
     g.add_argument("--charge", type=_int_arg("--charge"), help="net charge (instead of a suffix such as NO+)")
     g.add_argument(
         "--multiplicity",
         type=_int_arg("--multiplicity"),
         help="2S+1; default: the lowest-energy candidate near equilibrium",
     )
+
+
+def add_level_modifiers(g, well: bool = True) -> None:
+    g.add_argument(
+        "--d-shells",
+        choices=("cartesian", "spherical"),
+        help="override the basis set's d-shell convention (Pople 6-31G sets cartesian, others spherical)",
+    )
+    g.add_argument("--all-electron", action="store_true",
+                   help="correlate every electron (MP2, CC; default: the atoms' noble-gas cores are frozen)")
+    if well:
+        g.add_argument("--well-level", metavar="METHOD/BASIS",
+                       help="a higher level for the points about the minimum and the separated atoms: r_e, the"
+                            " vibrational and rotational constants and D_e come from it")
 
 
 def add_grid_options(p) -> None:
@@ -83,11 +96,16 @@ def _int_arg(name):
     return conv
 
 
-def resolve_level(args):
+def resolve_level(args, text=None):
+    """The level of ``--level`` (or ``text``) with the d-shell and frozen-core options applied."""
     from ..levels import parse_level
 
     cart = None if args.d_shells is None else args.d_shells == "cartesian"
-    return parse_level(args.level, cart)
+    return parse_level(text or args.level, cart, False if args.all_electron else None)
+
+
+def resolve_well_level(args):
+    return resolve_level(args, args.well_level) if getattr(args, "well_level", None) else None
 
 
 def resolve_grid(args, species):
@@ -123,15 +141,66 @@ class Progress:
 
             tqdm.monitor_interval = 0  # no monitor thread: worker processes are forked where no thread runs
             self.bar = tqdm(desc=label, unit="pt", file=sys.stderr, leave=False)
+        self.expected = None  # points the run is expected to compute, when known
+        self.levels: set = set()  # the levels whose cost is worth saying (not a cheap reference level)
+        self.enabled = enabled
+        self.said = set()
 
     def __call__(self, label, points):
         if self.bar is not None:
             self.bar.set_postfix_str(label, refresh=False)
             self.bar.update(points)
 
+    def measured(self, level_text: str, seconds_per_point: float, workers: int) -> None:
+        """The first measured cost of a point at a level: said once, with a rough estimate of the whole run."""
+        if not self.enabled or level_text in self.said or (self.levels and level_text not in self.levels):
+            return
+        self.said.add(level_text)
+        rest = ""
+        if self.expected:
+            rest = f"; about {_duration(seconds_per_point * self.expected / max(1, workers))} for the whole run (rough)"
+        msg = f"lcao: {level_text}: about {seconds_per_point:.2g} s a point on one worker (measured){rest}"
+        if self.bar is not None:
+            self.bar.write(msg, file=sys.stderr)
+        else:
+            print(msg, file=sys.stderr)
+
     def close(self):
         if self.bar is not None:
             self.bar.close()
+
+
+def _duration(seconds: float) -> str:
+    if seconds < 90:
+        return f"{seconds:.0f} s"
+    if seconds < 5400:
+        return f"{seconds / 60:.0f} min"
+    return f"{seconds / 3600:.1f} h"
+
+
+def announce(progress, species, level, grid, multiplicity, workers, well=None) -> None:
+    """Before a run: the basis size and what is about to be computed (stderr, unless quiet)."""
+    from ..atoms import charge_placements
+    from ..methods import method_for
+    from ..pipeline import basis_size
+    from ..scan.grid import default_grid
+    from ..scan.plan import expected_points
+    from ..threads import cores
+
+    if not progress.enabled:
+        return
+    method = method_for(level)
+    n = len(grid) if grid is not None else len(default_grid(*species.z))
+    mult = multiplicity or method.fixed_multiplicity(level, species) or species.lowest_multiplicity()
+    probes = 0 if (multiplicity or method.fixed_multiplicity(level, species)) else len(species.multiplicity_candidates())
+    progress.expected = expected_points(n, method.state_plan(level, mult), len(charge_placements(species)), probes)
+    for lv in (level, well):
+        if lv is not None:
+            progress.levels |= {lv.with_basis(b).text for b in lv.cbs[:2]} if lv.cbs else {lv.text}
+    sizes = f"{basis_size(species, level)} basis functions at {level.text}"
+    if well is not None:
+        sizes += f", {basis_size(species, well)} at {well.text} (the well and atoms)"
+    print(f"lcao: {species.label}: {sizes}; {n} grid points; {workers or cores()} worker process(es)", file=sys.stderr)
 
 
 def open_store(args):
@@ -159,6 +228,9 @@ def resolve_args(args):
     species = parse_species(args.species, args.charge)
     level = resolve_level(args)
     grid = resolve_grid(args, species)
+    well = resolve_well_level(args)
+    if well is not None:
+        resolve_inputs(species, well, grid, args.multiplicity)  # refused here, before anything is written
     return resolve_inputs(species, level, grid, args.multiplicity)
 
 
@@ -177,10 +249,11 @@ def run(args) -> int:
     resolve_isotopes(species.atoms, args.isotopes)
     out = check_outputs(args, args.out or default_out_dir(species, level))
     progress = Progress(not args.quiet, f"{species.label} {level.text}")
+    announce(progress, species, level, grid, args.multiplicity, args.workers, resolve_well_level(args))
     try:
         with open_store(args) as store:
             result = curve(species, level, grid, multiplicity=args.multiplicity, store=store, isotopes=args.isotopes,
-                           progress=progress, workers=args.workers)
+                           progress=progress, workers=args.workers, well_level=resolve_well_level(args))
     finally:
         progress.close()
     paths = write_outputs(result, out)

@@ -34,7 +34,7 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
         default="well",
         help="which solution to analyse (default: restricted for a closed-shell singlet under HF, else the lowest)",
     )
-    add_level_options(p)
+    add_level_options(p, well=False)
     add_grid_options(p)
     add_store_options(p)
     p.add_argument("--out", metavar="DIR", help="output folder (default: lcao-results/SPECIES_METHOD_BASIS_orbitals)")

@@ -8,7 +8,7 @@ import os
 import re
 import sys
 
-from .curve import Progress, add_grid_options, add_store_options, resolve_grid
+from .curve import Progress, add_grid_options, add_level_modifiers, add_store_options, resolve_grid, resolve_level
 
 HELP = "curves, fits and orbitals of several species and/or levels side by side, with handbook values"
 DESCRIPTION = (
@@ -22,7 +22,7 @@ RUN_HELP = "run a study file (TOML): species, levels, grids and outputs of a who
 def add_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("species", nargs="*", help="formulas (N2 CO CN- NO+ BF); or use --electrons")
     p.add_argument("--level", action="append", help="METHOD/BASIS; repeat for a ladder (default HF/6-31G)")
-    p.add_argument("--d-shells", choices=("cartesian", "spherical"), help="override the basis d-shell convention")
+    add_level_modifiers(p)
     rule = p.add_argument_group("members by electron count")
     rule.add_argument("--electrons", metavar="N", type=int, help="every diatomic of the element pool with N electrons")
     rule.add_argument("--elements", metavar="LIST", help="element pool, comma-separated (e.g. B,C,N,O,F)")
@@ -120,8 +120,11 @@ def _report(rows, title, paths) -> int:
         print("  " + line)
     failed = [r for r in rows if r.status != "ok"]
     print("  (hb = handbook: Huber & Herzberg 1979 / NIST WebBook as shipped; err = computed - handbook)")
-    print("  caution: Hartree-Fock dissociation energies are poor and minimal-basis ones qualitative; do not feed them"
-          " to a kinetics, process or safety model without validated data.")
+    from ..export.series_files import levels_of
+    from ..pipeline import caution_for
+
+    for text in dict.fromkeys(caution_for(lv) for lv in levels_of(rows)):
+        print(f"  caution: {text}")
     print(f"  wrote: {', '.join(paths)}")
     return 1 if failed else 0
 
@@ -129,12 +132,11 @@ def _report(rows, title, paths) -> int:
 def run(args) -> int:
     from ..errors import InputError
     from ..export.io import check_out_dir
-    from ..levels import parse_level
     from ..series import by_electron_count, members_from, parse_charge_range
     from ..species import parse_species
 
-    cart = None if args.d_shells is None else args.d_shells == "cartesian"
-    levels = [parse_level(t, cart) for t in (args.level or ["HF/6-31G"])]
+    levels = [resolve_level(args, t) for t in (args.level or ["HF/6-31G"])]
+    well = resolve_level(args, args.well_level) if args.well_level else None
     if args.electrons is not None:
         if args.species:
             raise InputError("give species or --electrons, not both")
@@ -151,7 +153,7 @@ def run(args) -> int:
         from ..scan.grid import default_grid
 
         default_grid(*species[0].z, points=points)  # validates the count
-    members = members_from(species, levels, grid, None, points)
+    members = members_from(species, levels, grid, None, points, well)
     from ..store import check_store_path
 
     out = check_out_dir(args.out)

@@ -7,6 +7,7 @@ import os
 
 from .curve import (
     Progress,
+    add_level_modifiers,
     add_grid_options,
     add_store_options,
     add_workers_option,
@@ -14,6 +15,8 @@ from .curve import (
     check_outputs,
     open_store,
     resolve_grid,
+    resolve_level,
+    resolve_well_level,
 )
 
 HELP = "parameter sheet for kinetics models: constants in several units, thermochemistry, NASA polynomials"
@@ -28,7 +31,7 @@ DESCRIPTION = (
 def add_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("species", help="formula with optional charge")
     p.add_argument("--level", help="METHOD/BASIS for computed constants (default HF/6-31G)")
-    p.add_argument("--d-shells", choices=("cartesian", "spherical"), help="override the basis d-shell convention")
+    add_level_modifiers(p)
     p.add_argument("--charge", type=int, help="net charge (instead of a suffix)")
     p.add_argument("--multiplicity", type=int, help="2S+1 (default: lowest-energy candidate)")
     p.add_argument("--constants", choices=("computed", "handbook", "mixed"), default="computed",
@@ -47,7 +50,6 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
 def run(args) -> int:
     from ..export.curve_files import write_outputs
     from ..export.sheet_files import SHEET_WRITERS
-    from ..levels import parse_level
     from ..sheet import build_sheet
     from ..species import parse_species
 
@@ -55,10 +57,10 @@ def run(args) -> int:
     species = parse_species(args.species, args.charge)
     if args.multiplicity is not None:
         species.check_multiplicity(args.multiplicity)
-    level = None
+    level = well = None
     if args.constants != "handbook" or args.level:
-        cart = None if args.d_shells is None else args.d_shells == "cartesian"
-        level = parse_level(args.level or "HF/6-31G", cart)
+        level = resolve_level(args, args.level or "HF/6-31G")
+        well = resolve_well_level(args)
     grid = resolve_grid(args, species)
     points = int(args.points) if (args.points is not None and grid is None) else None
     if args.constants == "handbook":
@@ -87,7 +89,7 @@ def run(args) -> int:
                 sheet = build_sheet(species, level, source=args.constants, multiplicity=args.multiplicity, grid=grid,
                                     points=points, store=store, isotopes=args.isotopes, anharmonic=args.anharmonic,
                                     dhf298_kj_per_mol=args.dhf298, polynomial=args.polynomial, workers=args.workers,
-                                    progress=progress)
+                                    progress=progress, well_level=well)
     finally:
         progress.close()
     paths = write_outputs(sheet, out, SHEET_WRITERS)

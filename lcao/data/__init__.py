@@ -7,6 +7,8 @@ quoted from memory and have not been checked against the printed table.
 ``atomic_enthalpies.csv``: standard enthalpies of formation of the gaseous
 atoms (CODATA Key Values), for enthalpies of formation derived from a
 computed atomisation energy.
+``atomic_fine_structure.csv``: the J levels of the atoms' and atomic ions'
+ground terms (NIST Atomic Spectra Database), for spin-orbit corrections.
 """
 
 from __future__ import annotations
@@ -44,4 +46,15 @@ def atomic_enthalpies() -> dict[str, dict]:
     out = {}
     for row in csv.DictReader(text.splitlines()):
         out[row["symbol"]] = {**row, "dhf298_kj_per_mol": float(row["dhf298_kj_per_mol"])}
+    return out
+
+
+@lru_cache(maxsize=1)
+def fine_structure() -> dict[tuple[str, int], dict]:
+    """(symbol, charge) -> {'term', 'levels': ((J, energy_cm1), ...), 'source', 'checked'}."""
+    text = resources.files(__package__).joinpath("atomic_fine_structure.csv").read_text(encoding="utf-8")
+    out = {}
+    for row in csv.DictReader(text.splitlines()):
+        levels = tuple((float(j), float(e)) for j, e in (part.split(":") for part in row["levels_j_cm1"].split(";")))
+        out[(row["symbol"], int(row["charge"]))] = {**row, "levels": levels}
     return out

@@ -23,8 +23,8 @@ def _versions() -> dict:
 
 def curve_document(result) -> dict:
     """The ``curve.json`` document of a :class:`lcao.pipeline.CurveResult`."""
-    from ..pipeline import CAUTION
     from ..store import PROTOCOL_VERSION
+    from ..methods import method_for
     from .fit_fields import fit_document
     from ..units import CODATA_SOURCE, bohr_to_angstrom
 
@@ -50,7 +50,7 @@ def curve_document(result) -> dict:
             "electrons": sp.n_electrons,
             "multiplicity": result.multiplicity,
             "multiplicity_source": result.multiplicity_source,
-            "level": result.level.as_dict(),
+            "level": {**result.level.as_dict(), "description": method_for(result.level).describe(result.level)},
             "reference": scan.reference,
             "references": scan.references,
             "grid": result.grid.as_dict(),
@@ -72,12 +72,12 @@ def curve_document(result) -> dict:
         },
         "notes": list(scan.notes) + list(result.warnings),
         "execution": result.execution,
-        "caution": CAUTION,
+        "caution": result.caution,
     }
     if result.along:
         doc["along_curve"] = list(result.along)
     if result.fit is not None:
-        doc["fit"] = fit_document(result.fit)
+        doc["fit"] = fit_document(result.fit, result.caution)
     elif result.fit_error:
         doc["fit"] = None
         doc["fit_error"] = result.fit_error

@@ -5,7 +5,7 @@ from __future__ import annotations
 
 import math
 
-from ..fit import DE_CAUTION, N_LEVELS_REPORTED
+from ..fit import DE_NOTE, N_LEVELS_REPORTED
 from ..fit.morse import morse_levels
 from ..units import HARTREE_CM1, HARTREE_EV, bohr_to_angstrom
 
@@ -20,8 +20,27 @@ def morse_wavenumbers(fit) -> tuple[float, float]:
     return m.a * math.sqrt(2.0 * m.de / fit.mu), m.a**2 / (2.0 * fit.mu)
 
 
-def fit_document(fit) -> dict:
-    """The ``fit`` block of ``curve.json`` (field names documented in the README)."""
+def spin_orbit_block(fit) -> dict | None:
+    """The atomic spin-orbit correction of D_e and D_0, a separate labelled term."""
+    so = fit.spin_orbit
+    if so is None:
+        return None
+    corr = so.correction_hartree
+    return {
+        "correction_ev": None if corr is None else corr * HARTREE_EV,
+        "correction_cm1": None if corr is None else corr * HARTREE_CM1,
+        "de_ev": None if (corr is None or fit.de is None) else (fit.de + corr) * HARTREE_EV,
+        "d0_ev": None if (corr is None or fit.d0 is None) else (fit.d0 + corr) * HARTREE_EV,
+        "atoms": [{"atom": label, "term": term, "shift_cm1": shift, "source": source, "checked": checked}
+                  for label, term, shift, source, checked in so.atoms],
+        "method": "each atom's lowest J level against the (2J+1)-weighted mean of its ground term",
+        "note": "the molecule's own first-order spin-orbit splitting (Pi states) is not included",
+    }
+
+
+def fit_document(fit, caution: str | None = None) -> dict:
+    """The ``fit`` block of ``curve.json`` (field names documented in the README); ``caution`` is the
+    level's (:func:`lcao.pipeline.caution_for`)."""
     a = bohr_to_angstrom
     cm = HARTREE_CM1
     c = fit.constants
@@ -46,12 +65,16 @@ def fit_document(fit) -> dict:
         "de_source": "separated atoms at the same level",
         "d0_ev": _ev(fit.d0),
         "minimum_above_limit_ev": _ev(fit.minimum_above_limit),
-        "zpe_cm1": None if fit.levels is None else fit.levels.zpe * cm,
+        "zpe_cm1": None if fit.zpe_used is None else fit.zpe_used * cm,
+        "zpe_source": fit.zpe_source or None,
+        "sources": dict(fit.sources) or None,
+        "spin_orbit": spin_orbit_block(fit),
         "morse": None,
         "morse_error": fit.morse_error,
         "vibrational_levels": None,
         "warnings": list(fit.warnings),
-        "caution": DE_CAUTION,
+        "de_note": DE_NOTE,
+        "caution": caution,
     }
     if not fit.bound:
         out["binding"] = "not bound at this level"
@@ -84,6 +107,7 @@ def fit_document(fit) -> dict:
             morse_g = morse_levels(we_m, wexe_m, k - 1) if k else []
         out["vibrational_levels"] = {
             "method": "sinc DVR (Colbert & Miller 1992) on a cubic spline of the lowest trusted points",
+            "zpe_of_these_levels_cm1": lv.zpe * cm,
             "n_bound": lv.n_bound,
             "levels": [
                 {

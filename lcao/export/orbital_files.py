@@ -23,7 +23,7 @@ def orbitals_document(res) -> dict:
 
     from .. import __version__
     from ..analysis.orbitals import NONBONDING_OVERLAP
-    from ..pipeline import CAUTION
+    from ..pipeline import caution_for
     from ..units import HARTREE_EV
 
     a = res.analysis
@@ -71,7 +71,7 @@ def orbitals_document(res) -> dict:
         "s2_deviation": a.s2 - a.s2_exact,
         "frontier": a.frontier(),
         "overlap_integrals": a.overlaps,
-        "caution": CAUTION,
+        "caution": caution_for(res.level),
     }
 
 

@@ -68,8 +68,7 @@ def series_document(rows, title: str = "") -> dict:
     import pyscf
 
     from .. import __version__
-    from ..fit import DE_CAUTION
-    from ..pipeline import CAUTION
+    from ..pipeline import caution_for
 
     out_rows = []
     for r in rows:
@@ -94,8 +93,22 @@ def series_document(rows, title: str = "") -> dict:
         "units": "distances angstrom, wavenumbers cm-1, energies eV unless a field name says otherwise",
         "rows": out_rows,
         "handbook_source": "lcao/data/diatomic_constants.csv (Huber & Herzberg 1979; NIST Chemistry WebBook), see each row's source and checked fields",
-        "caution": CAUTION + " " + DE_CAUTION,
+        "caution": " ".join(dict.fromkeys(caution_for(lv) for lv in levels_of(rows))),
     }
+
+
+def levels_of(rows) -> list:
+    """The distinct levels of the rows, parsed (a failed row's level text may not parse)."""
+    from ..errors import LcaoError
+    from ..levels import parse_level
+
+    out = []
+    for text in dict.fromkeys(r.level for r in rows):
+        try:
+            out.append(parse_level(text))
+        except LcaoError:
+            continue
+    return out
 
 
 def series_csv(rows) -> str:

@@ -51,11 +51,9 @@ S2_JUMP = 0.2
 #: levels listed in the outputs
 N_LEVELS_REPORTED = 10
 
-DE_CAUTION = (
-    "Hartree-Fock dissociation energies are poor (typically a large fraction too small, or unbound) and the"
-    " Morse asymptote is an extrapolation; do not use either in a kinetics, process or safety model without"
-    " validated data."
-)
+#: beside every dissociation energy: which of the three it is
+DE_NOTE = ("D_e is from the separated atoms at the same level; the Morse asymptote is an extrapolation (a model"
+           " value), never to be used as D_e")
 
 
 @dataclass(frozen=True)
@@ -66,7 +64,7 @@ class FitInput:
         well_r, well_e: the trusted points of the well branch; well_branch: its name.
         refined_r, refined_e: trusted refinement points about the minimum (may be empty).
         curve_r, curve_e: the lowest trusted point per distance; curve_s2: their <S^2> (NaN where none).
-        restricted_e, unrestricted_e: the trusted energies of each branch at ``curve_r`` (NaN where
+        restricted_e, unrestricted_e: the reference energies of each branch at ``curve_r`` (NaN where
             the branch has none).
         restricted_limit_only: the last trusted point is restricted and no unrestricted branch exists.
         limit_e: the separated-atom limit at the same level.
@@ -122,6 +120,13 @@ class CurveFit:
     well_branch: str
     symbols: tuple[str, str] = ("A", "B")
     warnings: tuple[str, ...] = field(default=())
+    #: the atomic spin-orbit correction of D_e and D_0 (:class:`lcao.fit.spin_orbit.SpinOrbit`), or None
+    spin_orbit: object = None
+    #: which level each number came from, where a curve and its well were computed at different levels
+    sources: dict = field(default_factory=dict)
+    #: the zero-point energy D_0 rests on (hartree) and how it was obtained
+    zpe_used: float | None = None
+    zpe_source: str = ""
 
     @property
     def zpe(self) -> float | None:
@@ -210,15 +215,42 @@ def fit_curve(inp: FitInput) -> CurveFit:
     except (ValueError, np.linalg.LinAlgError) as exc:
         notes.append(f"vibrational levels not solved: {exc}")
     if levels is not None and levels.n_bound:
-        zpe = levels.zpe
+        zpe, zpe_source = levels.zpe, "the lowest solved vibrational level"
     else:
-        zpe = 0.5 * consts["we"] - 0.25 * consts["wexe"]
+        zpe, zpe_source = 0.5 * consts["we"] - 0.25 * consts["wexe"], "omega_e/2 - omega_e x_e/4"
         notes.append("ZPE from omega_e and omega_e x_e (no solved levels)")
     if inp.restricted_limit_only and len(inp.curve_e) and inp.curve_e[-1] - inp.limit_e > 1e-2:
         notes.append("this restricted curve dissociates to the wrong limit; D_e from the separated atoms stands,"
                      " the Morse asymptote does not")
     return CurveFit(lf, consts, mu, inp.isotopes, True, gap, morse_fit, morse_err, levels, gap - zpe, None,
-                    inp.well_branch, inp.symbols, tuple(notes))
+                    inp.well_branch, inp.symbols, tuple(notes), zpe_used=zpe, zpe_source=zpe_source)
+
+
+def with_well_level(fit: CurveFit, well_r, well_e, well_limit: float, well_text: str, curve_text: str) -> CurveFit:
+    """The fit of a curve whose well (points about the minimum) and separated atoms were computed at a
+    higher level: r_e, k, omega_e, omega_e x_e, B_e, alpha_e and D_e from the well level (a local fit
+    through its points, its atoms), D_0 = D_e - ZPE with ZPE = omega_e/2 - omega_e x_e/4 of the well
+    level; the Morse model and the solved vibrational levels stay those of the curve level.
+
+    Raises:
+        FitError: the well-level points have no minimum inside them.
+    """
+    from dataclasses import replace
+
+    lf = local_fit(well_r, well_e)
+    consts = dunham_constants(lf.re, lf.k, lf.c3, lf.c4, fit.mu)
+    de = well_limit - lf.e_min
+    zpe = 0.5 * consts["we"] - 0.25 * consts["wexe"]
+    sources = {key: well_text for key in ("re", "k", "we", "wexe", "be", "alpha_e", "de", "d0", "zpe")}
+    sources.update({"morse": curve_text, "vibrational_levels": curve_text})
+    notes = list(fit.warnings)
+    bound = de > 0
+    if not bound:
+        notes.append(f"not bound at {well_text}: the minimum lies {-de * HARTREE_EV:.3f} eV above its separated atoms")
+    return replace(fit, local=lf, constants=consts, bound=bound, de=de if bound else None,
+                   d0=(de - zpe) if bound else None, minimum_above_limit=None if bound else -de,
+                   warnings=tuple(notes), sources=sources, zpe_used=zpe,
+                   zpe_source=f"omega_e/2 - omega_e x_e/4 at {well_text}")
 
 
 def _levels(r, e, mu, limit, e_min):

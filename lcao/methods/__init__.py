@@ -25,7 +25,7 @@ from .base import (
 
 __all__ = [
     "BRANCHES", "AtomResult", "Capabilities", "Method", "PointResult", "StatePlan", "Target", "Warm",
-    "lagrange_extrapolate", "known_methods", "method_for", "method_named", "register",
+    "lagrange_extrapolate", "known_methods", "method_for", "method_named", "register", "suggestions", "unregister",
 ]
 
 _REGISTRY: dict[str, Method] = {}
@@ -60,21 +60,44 @@ def known_methods() -> tuple[str, ...]:
 
 
 def method_named(name: str) -> Method | None:
-    return _REGISTRY.get(name.upper())
+    """The family that computes the method ``name``: by its registered names first, then by asking
+    each family (:meth:`Method.accepts`), or None."""
+    key = name.upper()
+    got = _REGISTRY.get(key)
+    if got is not None:
+        return got
+    for family in dict.fromkeys(_REGISTRY.values()):
+        if family.accepts(key):
+            return family
+    return None
+
+
+def suggestions(name: str, n: int = 4) -> list[str]:
+    """Known method names nearest to ``name`` (for an error message), the functional library included."""
+    import difflib
+
+    pool = list(_REGISTRY)
+    for family in dict.fromkeys(_REGISTRY.values()):
+        pool += list(getattr(family, "name_pool", lambda: ())())
+    return difflib.get_close_matches(name.upper(), list(dict.fromkeys(p.upper() for p in pool)), n=n, cutoff=0.5)
 
 
 def method_for(level) -> Method:
     """The method family of a :class:`lcao.levels.Level`."""
-    got = _REGISTRY.get(level.method.upper())
+    got = method_named(level.method)
     if got is None:  # pragma: no cover - parse_level refuses unknown names
         raise KeyError(f"no method is registered for {level.method!r}")
     return got
 
 
 def _register_builtin() -> None:
+    from .correlated import Correlated
+    from .dft import KohnSham
     from .hf import HartreeFock
 
     register(HartreeFock())
+    register(Correlated())
+    register(KohnSham())
 
 
 _register_builtin()

@@ -203,6 +203,45 @@ class Method(ABC):
     names: tuple[str, ...] = ()
     capabilities: Capabilities = Capabilities(False, False, False, ())
 
+    def accepts(self, name: str) -> bool:
+        """Whether this family computes the method ``name`` (upper case) besides its :attr:`names`
+        (a density functional library knows hundreds of names)."""
+        return False
+
+    def check_name(self, name: str) -> None:
+        """Raise :class:`lcao.errors.LevelError` with the reason when a name this family recognises is not
+        offered (e.g. a reference it refuses to correlate)."""
+
+    def frozen_core_default(self, name: str) -> bool | None:
+        """True where the method leaves the cores out of the correlation by default, None where that
+        does not apply."""
+        return None
+
+    def caution(self, level) -> str:
+        """What a user must know before putting this level's numbers into a model."""
+        return ("These numbers come from one level of theory; results that feed a process, kinetics or"
+                " safety model need validated data (evaluated tables, higher-level calculations) and the"
+                " judgement of licensed practice.")
+
+    def describe(self, level) -> dict:
+        """What exactly the level computes, for the provenance of outputs (the reference, the
+        functional as evaluated, the grid, the correlated electrons)."""
+        return {}
+
+    def reference_level(self, level):
+        """For a level computed on top of another level's solutions (a correlated method on Hartree-Fock),
+        that level: the protocol then follows the reference's solutions at it and adds this method's
+        energy at each chosen reference point (:meth:`on_reference`). None: the level is followed itself."""
+        return None
+
+    def on_reference(self, target: Target, reference: PointResult, branch: str) -> PointResult:
+        """This method's point on a converged point of :meth:`reference_level` (same distance and branch)."""
+        raise NotImplementedError(f"{type(self).__name__} is not computed on a reference")
+
+    def orbitals_note(self, level) -> str | None:
+        """What the analysed orbitals are when they are not this method's own (e.g. the reference's)."""
+        return None
+
     @abstractmethod
     def state_plan(self, level, multiplicity: int) -> StatePlan:
         """How the state of ``multiplicity`` is followed at ``level``."""

@@ -176,9 +176,11 @@ class ProcessCaches:
         self.labels = BoundedCache(256)
         #: symmetry-adapted bases (lcao.analysis.symmetry), per atoms, basis and distance
         self.symmetry = BoundedCache(256)
+        #: density-functional integration grids per geometry (about 1 MB for N2)
+        self.grids = BoundedCache(64)
 
     def clear(self) -> None:
-        for c in (self.templates, self.integrals, self.labels, self.symmetry):
+        for c in (self.templates, self.integrals, self.labels, self.symmetry, self.grids):
             c.clear()
 
 

@@ -3,226 +3,36 @@
 ``HF`` means RHF for a closed-shell singlet, followed through the well and checked at every point for
 an instability towards UHF (the broken-symmetry unrestricted branch is computed from there on), and
 UHF otherwise. ``RHF``, ``UHF`` and ``ROHF`` ask for one reference; RHF reports an instability but
-does not follow it.
-
-Every point climbs the rescue ladder when it does not converge and is stability-followed until
-internally stable (:mod:`lcao.methods.scf`). Separated atoms are unrestricted, without symmetry,
-the lower of two starting guesses (PySCF's 'minao' and 'atom'), stability followed: the lowest UHF
-determinant of the Hund's-rule spin. These are not the spherically averaged atoms PySCF uses for its
-initial guess, which lie 0.35-0.56 Eh higher.
+does not follow it. The machinery is shared with Kohn-Sham DFT (:mod:`lcao.methods.scf_method`).
 """
 
 from __future__ import annotations
 
-import numpy as np
-
-from ..errors import LevelError
-from .base import AtomResult, Capabilities, Method, PointResult, StatePlan, Target
+from .scf_method import SelfConsistentField
 
 #: method name -> reference; 'auto' is RHF for a closed-shell singlet and UHF otherwise
 REFERENCES = {"HF": "auto", "RHF": "RHF", "UHF": "UHF", "ROHF": "ROHF"}
 
-_AUTO_SINGLET = StatePlan("restricted", {"restricted": "RHF", "unrestricted": "UHF"}, True, "unrestricted")
-_UHF = StatePlan("unrestricted", {"unrestricted": "UHF"})
-_RHF = StatePlan("restricted", {"restricted": "RHF"}, True, None)
-_ROHF = StatePlan("restricted", {"restricted": "ROHF"})
 
-
-class HartreeFock(Method):
+class HartreeFock(SelfConsistentField):
     """The Hartree-Fock family (see the module docstring)."""
 
     names = tuple(REFERENCES)
-    capabilities = Capabilities(stability=True, orbitals=True, spin_square=True, components=("reference",))
 
-    def state_plan(self, level, multiplicity: int) -> StatePlan:
-        ref = REFERENCES[level.method.upper()]
-        if ref == "auto":
-            return _AUTO_SINGLET if multiplicity == 1 else _UHF
-        return {"RHF": _RHF, "UHF": _UHF, "ROHF": _ROHF}[ref]
-
-    def fixed_multiplicity(self, level, species) -> int | None:
-        """RHF has one choice: the closed-shell singlet (an odd electron count is refused by :meth:`check`)."""
-        return species.lowest_multiplicity() if REFERENCES[level.method.upper()] == "RHF" else None
-
-    def check(self, level, species, multiplicity: int | None) -> None:
-        mult = species.lowest_multiplicity() if multiplicity is None else multiplicity
-        if REFERENCES[level.method.upper()] == "RHF" and mult != 1:
-            raise LevelError(
-                f"RHF needs a closed-shell singlet, but multiplicity is {mult};"
-                " use ROHF, UHF or HF for open shells"
-            )
-
-    def _reference(self, target: Target, branch: str) -> str:
-        return self.state_plan(target.level, target.multiplicity).reference[branch]
-
-    def _molecule(self, target: Target, r_bohr: float):
-        from .molecule import build_molecule
-
-        return build_molecule(target.atoms, r_bohr, target.level, target.charge, target.spin)
-
-    def point(self, target, r_bohr, branch, start, check_instability=False) -> PointResult:
-        from .scf import orbitals_of, solve, spin_square, unstable_towards_uhf
-
-        ref = self._reference(target, branch)
-        mol = self._molecule(target, r_bohr)
-        dm0 = None if not start else start.get("dm")
-        if dm0 is not None:
-            dm0 = np.asarray(dm0)
-            if dm0.shape[-1] != mol.nao:
-                dm0 = None
-            elif ref == "RHF" and dm0.ndim == 3:
-                dm0 = dm0.sum(axis=0)
-        sol = solve(mol, ref, dm0)
-        towards, along = None, None
-        if check_instability and sol.converged:
-            unstable, dm = unstable_towards_uhf(sol.scf)
-            if unstable:
-                towards, along = "unrestricted", {"dm": dm}
-        s2 = spin_square(sol.scf) if ref == "UHF" and sol.scf is not None else None
-        return PointResult(
-            float(r_bohr), sol.energy, sol.converged, sol.cycles, s2, sol.rescue, sol.stability, sol.reason,
-            {"reference": sol.energy}, {"dm": sol.dm}, towards, along,
-            orbitals_of(sol.scf) if sol.converged and sol.scf is not None else None,
-        )
-
-    def instability_start(self, target, point, branch):
-        """Re-converge the stored restricted density (no stability following) and take the start
-        along its RHF -> UHF instability."""
-        from .scf import solve, unstable_towards_uhf
-
-        mol = self._molecule(target, point.r_bohr)
-        dm = np.asarray(point.warm["dm"])
-        sol = solve(mol, "RHF", dm.sum(axis=0) if dm.ndim == 3 else dm, follow_stability=False)
-        if not sol.converged:
-            return None
-        unstable, start = unstable_towards_uhf(sol.scf)
-        return {"dm": start} if unstable else None
-
-    def atom(self, symbol, charge, spin, level) -> AtomResult:
-        from ..species import atomic_number
-        from .molecule import build_atom
-        from .scf import make_scf, solve
-
-        if atomic_number(symbol) - charge == 0:
-            mol = build_atom(symbol, level, charge, 0)
-            return AtomResult(symbol, charge, 0, 0.0, True, {"dm": np.zeros((2, mol.nao, mol.nao))}, {"reference": 0.0})
-        mol = build_atom(symbol, level, charge, spin)
-        best = None
-        for guess in ("minao", "atom"):
-            mf0 = make_scf(mol, "UHF")
-            try:
-                dm0 = mf0.get_init_guess(mol, guess)
-            except Exception:  # some guesses are unavailable for some elements
-                continue
-            sol = solve(mol, "UHF", dm0)
-            if sol.converged and (best is None or sol.energy < best.energy - 1e-10):
-                best = sol
-        converged = best is not None
-        if best is None:
-            best = solve(mol, "UHF", None)
-        return AtomResult(symbol, charge, spin, best.energy, converged, {"dm": best.dm}, {"reference": best.energy})
-
-    def fragment_start(self, target, a, b, flip):
-        """Block-diagonal (alpha, beta) density of the two atoms."""
-        from scipy.linalg import block_diag
-
-        da = np.asarray(a.warm["dm"])
-        db = np.asarray(b.warm["dm"])
-        if flip == "a":
-            da = da[::-1]
-        elif flip == "b":
-            db = db[::-1]
-        return {"dm": np.array([block_diag(da[0], db[0]), block_diag(da[1], db[1])])}
-
-    def analyse(self, target, point, branch):
-        return analyse_solution(self._molecule(target, point.r_bohr), self._reference(target, branch),
-                                np.asarray(point.warm["dm"]), point.orbitals)
-
-    def atom_levels(self, atom, level) -> tuple:
-        from .molecule import build_atom
-
-        mol = build_atom(atom.symbol, level, atom.charge, atom.spin)
-        if mol.nelectron == 0:
-            return ()
-        return atom_orbital_levels(mol, np.asarray(atom.warm["dm"]))
-
-    def basis_size(self, target) -> int:
-        return int(self._molecule(target, 2.0).nao)
+    def choice(self, level) -> str:
+        return REFERENCES[level.method.upper()]
 
     def seconds_per_point(self, basis_size: int) -> float:
         # measured warm-started points with stability checks, one thread: 0.012 s for N2 in 6-31G
         # (18 functions), 0.39 s in cc-pVTZ (60)
         return 0.012 * (max(basis_size, 1) / 18.0) ** 3
 
+    def caution(self, level) -> str:
+        return ("Hartree-Fock energies, and minimal-basis ones above all, are qualitative: dissociation energies at"
+                " this level can be badly wrong (often a large fraction too small, or no binding at all). Results"
+                " that feed a process, kinetics or safety model need validated data (evaluated tables,"
+                " higher-level calculations) and the judgement of licensed practice.")
 
-#: largest change of the density on rebuilding a stored point's orbitals before it is re-converged
-REBUILD_TOL = 1e-5
-
-
-def _fock_from_orbitals(s, orbitals):
-    """F = S C diag(e) C^T S: the Fock matrix whose eigenvectors are the given canonical orbitals."""
-    e, c, _ = orbitals
-    if np.asarray(c).ndim == 3:
-        return np.array([s @ (c[k] * e[k]) @ c[k].T @ s for k in (0, 1)])
-    return s @ (c * e) @ c.T @ s
-
-
-def analyse_solution(mol, reference: str, dm, orbitals=None):
-    """Analyse a converged SCF solution given by its density ``dm`` (and its orbitals
-    (mo_energy, mo_coeff, mo_occ) where the run kept them): from the orbitals directly (their Fock
-    matrix is S C e C^T S; no two-electron integrals are needed), or else from one diagonalisation of
-    the Fock matrix of the density, re-converged only if that does not reproduce the density."""
-    from ..analysis.orbitals import analyse
-    from .scf import make_scf, solve
-
-    dm = np.asarray(dm)
-    if reference == "RHF" and dm.ndim == 3:
-        dm = dm.sum(axis=0)
-    kept = orbitals is not None and np.asarray(orbitals[1]).ndim == (3 if reference == "UHF" else 2)
-    mf = make_scf(mol, reference, two_electron=not kept)
-    if kept:
-        mf.mo_energy, mf.mo_coeff, mf.mo_occ = orbitals
-        fock = _fock_from_orbitals(mf.get_ovlp(), orbitals)
-    else:
-        fock = mf.get_fock(dm=dm)
-        mf.mo_energy, mf.mo_coeff = mf.eig(fock, mf.get_ovlp())
-        mf.mo_occ = mf.get_occ(mf.mo_energy, mf.mo_coeff)
-    if np.max(np.abs(np.asarray(mf.make_rdm1()) - dm)) > REBUILD_TOL:
-        sol = solve(mol, reference, dm, follow_stability=False)
-        if not sol.converged:
-            from ..errors import CalculationError
-
-            raise CalculationError(f"the point at {mol.atom_coord(1)[2]:.4f} bohr did not re-converge for analysis")
-        return analyse(sol.scf)
-    # E = 1/2 tr[P (h + F)] per spin, from the Fock matrix at hand (no second Coulomb/exchange build)
-    h = mf.get_hcore()
-    fk = np.asarray(fock)
-    if dm.ndim == 3:
-        e_el = 0.5 * sum(float(np.einsum("ij,ji->", dm[k], h + fk[k])) for k in (0, 1))
-    else:
-        e_el = 0.5 * float(np.einsum("ij,ji->", dm, h + fk))
-    mf.e_tot = e_el + mol.energy_nuc()
-    mf.converged = True
-    return analyse(mf, fock=fock)
-
-
-def atom_orbital_levels(mol, dm) -> tuple:
-    """Orbital energies of an atom from its (alpha, beta) density: ((shell, spin, energy, occupation), ...)."""
-    from scipy.linalg import eigh
-
-    from .scf import make_scf
-
-    mf = make_scf(mol, "UHF")
-    dm = np.asarray(dm)
-    fock = mf.get_fock(dm=dm)
-    s = mf.get_ovlp()
-    labels = mol.ao_labels(fmt=False)
-    rows = []
-    for k, spin in enumerate(("alpha", "beta")):
-        e, c = eigh(fock[k], s)
-        occ_n = int(round(float(np.trace(dm[k] @ s))))
-        for j in range(len(e)):
-            w = c[:, j] * (s @ c[:, j])
-            shell = labels[int(np.argmax(np.abs(w)))][2]
-            rows.append((shell, spin, float(e[j]), 1.0 if j < occ_n else 0.0))
-    return tuple(rows)
+    def describe(self, level) -> dict:
+        return {"method": "Hartree-Fock", "reference": {"auto": "RHF for closed-shell singlets (followed into"
+                " broken-symmetry UHF past the instability), UHF otherwise"}.get(self.choice(level), self.choice(level))}

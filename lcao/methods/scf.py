@@ -61,14 +61,23 @@ class Solution:
     scf: object = field(default=None, repr=False, compare=False)
 
 
-def _classes():
+def _classes(kohn_sham: bool):
+    if kohn_sham:
+        from pyscf.dft import rks, roks, uks
+
+        return {"RHF": rks.RKS, "UHF": uks.UKS, "ROHF": roks.ROKS}
     from pyscf.scf import hf, rohf, uhf
 
     return {"RHF": hf.RHF, "UHF": uhf.UHF, "ROHF": rohf.ROHF}
 
 
-def make_scf(mol, reference: str, two_electron: bool = True):
-    """A PySCF SCF object for ``reference`` ('RHF', 'UHF', 'ROHF'), no checkpoint file, quiet.
+#: PySCF's integration grid level for density functionals (its default; recorded in every output)
+GRID_LEVEL = 3
+
+
+def make_scf(mol, reference: str, two_electron: bool = True, xc: str | None = None):
+    """A PySCF SCF object for ``reference`` ('RHF', 'UHF', 'ROHF'; with a functional ``xc`` the
+    Kohn-Sham ones, RKS, UKS, ROKS), no checkpoint file, quiet.
 
     The one-electron integrals, the orthogonaliser of the overlap, and the two-electron integrals where
     they fit in memory come from the process's integral cache (PySCF's custom-Hamiltonian hooks
@@ -79,7 +88,10 @@ def make_scf(mol, reference: str, two_electron: bool = True):
     from .jk import product_class
 
     ints = caches().integrals
-    mf = product_class(_classes()[reference])(mol)
+    mf = product_class(_classes(xc is not None)[reference])(mol)
+    if xc is not None:
+        mf.xc = xc
+        mf.grids = grids_for(mol, GRID_LEVEL)
     mf.chkfile = None
     mf.verbose = 0
     mf.conv_tol = CONV_TOL
@@ -92,6 +104,21 @@ def make_scf(mol, reference: str, two_electron: bool = True):
     mf.get_ovlp = lambda *a, **k: s
     mf.check_linear_dependency = lambda *a, **k: x
     return mf
+
+
+def grids_for(mol, level: int):
+    """PySCF's integration grid for ``mol`` at ``level``, built once per geometry (46 ms for N2)."""
+    from pyscf.dft import gen_grid
+
+    kept = caches().grids
+    key = (caches().integrals.key(mol), level)
+    g = kept.get(key)
+    if g is None:
+        g = gen_grid.Grids(mol)
+        g.level = level
+        g.build(with_non0tab=True)
+        kept.put(key, g)
+    return g
 
 
 def rotations(mf) -> int:
@@ -110,10 +137,10 @@ def _kernel(mf, dm0):
     return bool(mf.converged) and math.isfinite(mf.e_tot), int(cycles)
 
 
-def ladder(mol, reference: str, dm0, *, diis_cycles: int = 80, level_shift: bool = True):
+def ladder(mol, reference: str, dm0, *, diis_cycles: int = 80, level_shift: bool = True, xc: str | None = None):
     """Plain DIIS, then level shift with damping (unless ``level_shift`` is False), then second-order
     SCF. Returns (SCF object, cycles, rung)."""
-    mf = make_scf(mol, reference)
+    mf = make_scf(mol, reference, xc=xc)
     mf.max_cycle = diis_cycles
     ok, cycles = _kernel(mf, dm0)
     if ok:
@@ -121,7 +148,7 @@ def ladder(mol, reference: str, dm0, *, diis_cycles: int = 80, level_shift: bool
     start = dm0
     if level_shift:
         log.debug("SCF did not converge in %d cycles; trying a level shift", cycles)
-        ms = make_scf(mol, reference)
+        ms = make_scf(mol, reference, xc=xc)
         ms.level_shift = 0.3
         ms.damp = 0.3
         ms.diis_start_cycle = 6
@@ -129,13 +156,13 @@ def ladder(mol, reference: str, dm0, *, diis_cycles: int = 80, level_shift: bool
         ok, c = _kernel(ms, start)
         cycles += c
         if ok:
-            mf = make_scf(mol, reference)
+            mf = make_scf(mol, reference, xc=xc)
             ok, c = _kernel(mf, ms.make_rdm1())
             cycles += c
             if ok:
                 return mf, cycles, "level-shift"
     log.debug("trying second-order SCF after %d cycles", cycles)
-    mn = make_scf(mol, reference).newton()
+    mn = make_scf(mol, reference, xc=xc).newton()
     mn.max_cycle = 60
     ok, c = _kernel(mn, start)
     cycles += c
@@ -145,8 +172,9 @@ def ladder(mol, reference: str, dm0, *, diis_cycles: int = 80, level_shift: bool
 def _stability_step(mf, reference: str):
     """One internal stability check; returns new orbitals or None when stable.
 
-    RHF and UHF solutions with the integrals in memory and a small basis use the dense Hessian of
-    :mod:`lcao.methods.stability`, the rest its Davidson route on PySCF's Hessian-vector products.
+    Hartree-Fock RHF and UHF solutions with the integrals in memory and a small basis use the dense
+    Hessian of :mod:`lcao.methods.stability`, the rest (Kohn-Sham solutions among them) its Davidson
+    route on PySCF's Hessian-vector products.
     """
     if rotations(mf) == 0:
         return None
@@ -174,11 +202,12 @@ def _stability_step(mf, reference: str):
             st.rotate_orbitals(mf.mo_coeff[1], mf.mo_occ[1], v[na:]))
 
 
-def solve(mol, reference: str, dm0=None, *, follow_stability: bool = True) -> Solution:
+def solve(mol, reference: str, dm0=None, *, follow_stability: bool = True, xc: str | None = None) -> Solution:
     """Converge one SCF from ``dm0`` and follow internal instabilities until stable.
 
     Args:
-        mol: the PySCF molecule; reference: 'RHF', 'UHF' or 'ROHF'.
+        mol: the PySCF molecule; reference: 'RHF', 'UHF' or 'ROHF'; xc: a functional for Kohn-Sham
+            (None: Hartree-Fock).
         dm0: starting density (None for PySCF's default guess).
         follow_stability: run internal stability analysis and re-converge from the lower-energy
             direction until the solution is stable.
@@ -187,7 +216,7 @@ def solve(mol, reference: str, dm0=None, *, follow_stability: bool = True) -> So
         Solution (``converged=False`` with a reason on failure; never raises for a convergence failure).
     """
     try:
-        mf, cycles, rescue = ladder(mol, reference, dm0)
+        mf, cycles, rescue = ladder(mol, reference, dm0, xc=xc)
     except (np.linalg.LinAlgError, FloatingPointError, ValueError) as exc:
         n = mol.nao
         empty = np.zeros((2, n, n)) if reference != "RHF" else np.zeros((n, n))
@@ -204,7 +233,7 @@ def solve(mol, reference: str, dm0=None, *, follow_stability: bool = True) -> So
             if mo is None:
                 break
             dm = mf.make_rdm1(mo, mf.mo_occ)
-            trial, c, r = ladder(mol, reference, dm, diis_cycles=AFTER_INSTABILITY_DIIS_CYCLES, level_shift=False)
+            trial, c, r = ladder(mol, reference, dm, diis_cycles=AFTER_INSTABILITY_DIIS_CYCLES, level_shift=False, xc=xc)
             cycles += c
             if r == "failed" or trial.e_tot > mf.e_tot - STABILITY_GAIN:
                 break
@@ -227,7 +256,7 @@ def spin_square(mf) -> float | None:
 
 
 def unstable_towards_uhf(mf):
-    """RHF -> UHF (triplet) instability check of a converged RHF solution.
+    """RHF -> UHF (RKS -> UKS) triplet instability check of a converged closed-shell solution.
 
     Returns:
         (unstable, dm): ``dm`` is an (alpha, beta) starting density along the instability, or None

@@ -156,8 +156,11 @@ def lowest_mode(h):
 
 
 def dense_possible(mf) -> bool:
-    """Whether the integrals are in memory and the basis and rotation space are small enough."""
-    if mf.__dict__.get("_eri") is None or mf.mol.nao > DENSE_MAX_NAO:
+    """Whether this is a Hartree-Fock solution (the dense formulas hold for it only) with the integrals in
+    memory and a small enough basis and rotation space."""
+    from pyscf.dft.rks import KohnShamDFT
+
+    if mf.__dict__.get("_eri") is None or mf.mol.nao > DENSE_MAX_NAO or isinstance(mf, KohnShamDFT):
         return False
     occ = np.asarray(mf.mo_occ)
     if occ.ndim == 1:

@@ -40,6 +40,9 @@ class ScanResult:
             multiplicity reaches.
         computed, reused: points computed now and taken from the store.
         notes: messages worth showing to the user.
+        references: branch -> the name outputs show for it.
+        reference_scan: for a level computed on a reference (a correlated method on Hartree-Fock), the
+            reference's own ScanResult, else None.
     """
 
     points: tuple[CurvePoint, ...]
@@ -53,6 +56,7 @@ class ScanResult:
     reused: int
     notes: tuple[str, ...] = field(default=())
     references: dict = field(default_factory=dict)
+    reference_scan: object = None
 
 
 def curve_points(found: dict, n: int, branch: str, sweep: str) -> list:
@@ -100,16 +104,25 @@ def flag_outliers(points) -> list:
     return out
 
 
+def reference_energy(p) -> float:
+    """The energy a point's branch is chosen by: its reference component (the Hartree-Fock energy under a
+    correlated level; the total energy of an SCF method)."""
+    e = p.components.get("reference") if p.components else None
+    return p.energy_hartree if e is None else e
+
+
 def lowest_over_branches(branches: dict, n: int) -> list:
-    """Per distance the lowest trusted point over the branches (restricted kept within the split)."""
+    """Per distance the trusted point of the branch whose reference is lowest (restricted kept within the
+    split): the lowest solution for an SCF method, the lowest reference for a correlated one, whose
+    correlated energy is not variational and may lie below the right branch's."""
     final = []
     for i in range(n):
         cands = [b[i] for b in branches.values() if b[i] is not None]
         good = [p for p in cands if p.trusted]
         if good:
-            best = min(good, key=lambda p: (p.energy_hartree, p.branch != "restricted"))
+            best = min(good, key=lambda p: (reference_energy(p), p.branch != "restricted"))
             rest = [p for p in good if p.branch == "restricted"]
-            if rest and best.branch != "restricted" and rest[0].energy_hartree - best.energy_hartree < BRANCH_SPLIT_HARTREE:
+            if rest and best.branch != "restricted" and reference_energy(rest[0]) - reference_energy(best) < BRANCH_SPLIT_HARTREE:
                 best = rest[0]
             final.append(best)
         else:
@@ -170,27 +183,36 @@ def first_unstable(points, towards: str) -> int | None:
 
 
 
-def fit_input(result: ScanResult, refined, isotopes, symbols):
-    """The arrays the fit takes (:class:`lcao.fit.FitInput`) from a scan and its refinement points.
+def well_points(result: ScanResult) -> tuple[list, str]:
+    """(the trusted points of the well, the well branch's name).
 
-    The well branch is the restricted one when a curve has both (the state Hartree-Fock tables
-    report for a closed-shell singlet), otherwise the lowest trusted points.
+    For a self-consistent method with both branches, the restricted branch (the state Hartree-Fock
+    tables report for a closed-shell singlet); for a level on a reference, and otherwise, the curve's
+    points (per distance the branch of the lowest reference: a correlated energy on the restricted
+    reference of a stretched bond can dive below the well and must not be taken for it).
     """
+    branches = result.branches
+    if result.reference_scan is None and "restricted" in branches and "unrestricted" in branches:
+        return [p for p in branches["restricted"] if p is not None and p.trusted], "restricted"
+    well = [p for p in result.points if p.trusted]
+    if not well:
+        return [], "none"
+    return well, min(well, key=lambda p: p.energy_hartree).branch
+
+
+def fit_input(result: ScanResult, refined, isotopes, symbols):
+    """The arrays the fit takes (:class:`lcao.fit.FitInput`) from a scan and its refinement points
+    (the well: :func:`well_points`)."""
     import numpy as np
 
     from ..fit import FitInput
 
     branches = result.branches
-    if "restricted" in branches and "unrestricted" in branches:
-        well = [p for p in branches["restricted"] if p is not None and p.trusted]
-        well_branch = "restricted"
-    else:
-        well = [p for p in result.points if p.trusted]
-        well_branch = well[0].branch if well else "none"
+    well, well_branch = well_points(result)
     low = [p for p in result.points if p.trusted]
 
-    def branch_energies(name):
-        by_r = {p.r_bohr: p.energy_hartree for p in branches.get(name, ()) if p is not None and p.trusted}
+    def branch_energies(name):  # by their references (see lowest_over_branches)
+        by_r = {p.r_bohr: reference_energy(p) for p in branches.get(name, ()) if p is not None and p.trusted}
         return tuple(by_r.get(p.r_bohr, np.nan) for p in low)
 
     ref = [p for p in refined if p is not None and p.trusted]

@@ -89,6 +89,16 @@ def refinement(branch: str, r_centre: float, start) -> list[SweepSpec]:
             SweepSpec(name, branch, r_new, tuple(range(mid - 1, -1, -1)), start, mid)]
 
 
+def expected_points(n: int, plan, placements: int = 1, probes: int = 0) -> int:
+    """About how many points a curve of ``n`` grid points computes (for an estimate of its time): the sweeps
+    of the plan (the secondary branch over about two thirds of the grid), the refinement and the probes."""
+    if plan.instability_check:
+        sweeps = n + (int(2 * n / 3) * (1 + placements) if plan.secondary else 0)
+    else:
+        sweeps = n * (1 + placements)
+    return sweeps + 2 * REFINE_HALF + 1 + 3 * probes
+
+
 def pieces(indices, size: int) -> list[tuple]:
     """``indices`` in consecutive pieces of at most ``size`` (a long chain split over several tasks)."""
     size = max(1, int(size))

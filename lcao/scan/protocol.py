@@ -106,6 +106,16 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
     Returns:
         (Scan, refinement CurvePoints, per-point analysis summaries)
     """
+    if target.level.cbs is not None:
+        from . import cbs
+
+        return await cbs.scan(session, method, species, target, r_all, tally, refine_points=refine_points,
+                              analyse=analyse, parts=parts)
+    if method.reference_level(target.level) is not None:
+        from . import on_reference
+
+        return await on_reference.scan(session, method, species, target, r_all, tally, refine_points=refine_points,
+                                       analyse=analyse, parts=parts)
     n = len(r_all)
     state = method.state_plan(target.level, target.multiplicity)
     i0 = planning.equilibrium_index(r_all, expected_bond_length_bohr(*species.z))

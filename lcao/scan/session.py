@@ -40,6 +40,14 @@ class Tally:
     #: the processes that computed this curve's points
     pids: set = field(default_factory=set)
 
+    def merge(self, other: "Tally") -> None:
+        """Take in the points and processes of a part of the same curve (a reference or component level)."""
+        for key in other.seen - self.seen:
+            self.seen.add(key)
+        self.computed += other.computed
+        self.reused += other.reused
+        self.pids |= other.pids
+
     def count(self, key, computed: bool) -> None:
         if key in self.seen:
             return
@@ -108,6 +116,15 @@ class Session:
         if self.progress is not None and n:
             self.progress(label, n)
 
+    def _measured(self, level, seconds_per_point: float) -> None:
+        """Keep the measured cost of a point at ``level``; the first one also goes to the progress
+        reporter (the CLI turns it into an estimate of the time still needed)."""
+        first = level.key() not in self._rate
+        self._rate[level.key()] = seconds_per_point
+        report = getattr(self.progress, "measured", None)
+        if first and report is not None:
+            report(level.text, seconds_per_point, self.executor.workers)
+
     def points_per_task(self, method, target, level_key: str) -> int:
         rate = self._rate.get(level_key)
         if rate is None:
@@ -175,7 +192,7 @@ class Session:
                     self.commit_point(species, mult, level, spec.sweep, p, tally)
                     n_new += 1
             if n_new:
-                self._rate[level.key()] = done.seconds / n_new
+                self._measured(level, done.seconds / n_new)
             history = outcome.history
             self._tick(spec.sweep, len(part))
         return got
@@ -209,6 +226,39 @@ class Session:
                 self.commit_point(species, mult, level, names[plan.secondary], q, tally)
             self._tick("probe", 1)
         return p, q
+
+    async def correlate(self, method, species, target, jobs, parts: int, tally: Tally) -> dict:
+        """``method``'s points on reference points: ``jobs`` are (sweep, branch, reference point); returns
+        (sweep, r_bohr rounded to 1e-8) -> PointResult, from the store or computed in about ``parts``
+        independent tasks (more where the points are dear), each committed as it comes back."""
+        from .tasks import CorrelationTask
+
+        level, mult = target.level, target.multiplicity
+        got: dict = {}
+        todo = []
+        for sweep, branch, ref in jobs:
+            p = self.stored_point(species, mult, level, sweep, ref.r_bohr)
+            if p is not None:
+                got[(sweep, round(ref.r_bohr, 8))] = p
+                tally.count(point_key(species, mult, level, sweep, ref.r_bohr), False)
+            else:
+                todo.append((sweep, branch, ref))
+        if not todo:
+            return got
+        size = max(1, min(self.points_per_task(method, target, level.key()), -(-len(todo) // max(1, parts))))
+        chunks = [todo[k:k + size] for k in range(0, len(todo), size)]
+
+        async def one(chunk):
+            done = await self.run(CorrelationTask(method, target, tuple((ref, branch) for _, branch, ref in chunk)))
+            tally.pids.add(done.pid)
+            self._measured(level, done.seconds / max(1, len(chunk)))
+            for (sweep, _, _), p in zip(chunk, done.value):
+                got[(sweep, round(p.r_bohr, 8))] = p
+                self.commit_point(species, mult, level, sweep, p, tally)
+            self._tick("correlation", len(chunk))
+
+        await asyncio.gather(*(one(c) for c in chunks))
+        return got
 
     # atoms -----------------------------------------------------------------------------------
 

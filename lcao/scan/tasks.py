@@ -225,3 +225,16 @@ class AtomLevelsTask:
 
     def run(self) -> tuple:
         return tuple(self.method.atom_levels(a, self.level) for a in self.atoms)
+
+
+@dataclass(frozen=True)
+class CorrelationTask:
+    """A level's energies on reference points: ``items`` are (reference point, branch), each correlated
+    independently (:meth:`lcao.methods.Method.on_reference`)."""
+
+    method: Method
+    target: Target
+    items: tuple = field(repr=False)
+
+    def run(self) -> tuple:
+        return tuple(self.method.on_reference(self.target, point, branch) for point, branch in self.items)

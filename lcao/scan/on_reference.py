@@ -1,0 +1,133 @@
+"""The protocol for a level computed on another level's solutions (a correlated method on Hartree-Fock).
+
+The reference level's curve is computed first, with the whole protocol (its sweeps are stored under the
+reference level and shared by every level on it). Then the level's energy is computed once at every
+trusted reference point of every branch, each point independently (the tasks spread over the workers),
+and the separated atoms at the same level beside them. Per distance the branch whose *reference* is
+lowest is kept (:func:`lcao.scan.assemble.lowest_over_branches`): a correlated energy is not
+variational, and on the restricted reference of a stretched bond it can fall below the right branch's.
+The refinement about the minimum follows the reference's well branch at the level's own minimum.
+"""
+
+from __future__ import annotations
+
+import asyncio
+
+from ..atoms import fragment_choices, needed_states, separated_atoms
+from ..methods import method_for
+from ..methods.base import Target
+from ..points import CurvePoint
+from . import assemble, plan as planning
+from .session import Tally
+
+
+def _placeholder(ref_point: CurvePoint, sweep: str) -> CurvePoint:
+    """A flagged point where the reference was not trusted: nothing was computed at this level there."""
+    return CurvePoint(ref_point.r_bohr, float("nan"), False, f"reference not trusted: {ref_point.flag}",
+                      ref_point.branch, sweep, ref_point.cycles)
+
+
+async def scan(session, method, species, target: Target, r_all, tally: Tally, *, refine_points=True, analyse=True,
+               parts=1):
+    """As :func:`lcao.scan.protocol.scan`, for a method with a :meth:`~lcao.methods.Method.reference_level`."""
+    from . import protocol
+
+    ref_level = method.reference_level(target.level)
+    ref_method = method_for(ref_level)
+    ref_target = Target(target.atoms, target.charge, target.multiplicity, ref_level)
+    ref_tally = Tally()
+    states = needed_states(species, target.spin)
+    atoms_task = asyncio.ensure_future(session.atoms(method, target.level, states))
+    ref, _, _ = await protocol.scan(session, ref_method, species, ref_target, r_all, ref_tally,
+                                    refine_points=False, analyse=False)
+    tally.merge(ref_tally)
+    n = len(r_all)
+    state = method.state_plan(target.level, target.multiplicity)
+    jobs = []
+    for branch, pts in ref.result.branches.items():
+        for p in pts:
+            if p is not None and p.trusted:
+                jobs.append((f"{branch}/correlated", branch, protocol.raw_point(ref, p)))
+    got = await session.correlate(method, species, target, jobs, parts, tally)
+    found: dict = {}
+    branches: dict = {}
+    sweeps: dict = {}
+    for branch, pts in ref.result.branches.items():
+        name = f"{branch}/correlated"
+        by_index = {}
+        for i, p in enumerate(pts):
+            if p is not None and (name, round(p.r_bohr, 8)) in got:
+                by_index[i] = got[(name, round(p.r_bohr, 8))]
+        found[name] = by_index
+        listed = assemble.curve_points(by_index, n, branch, name)
+        listed = [q if q is not None or p is None else _placeholder(p, name) for q, p in zip(listed, pts)]
+        sweeps[name] = listed
+        branches[branch] = assemble.flag_outliers(listed)
+    atoms = await atoms_task
+    limit = separated_atoms(species, atoms)
+    frags = fragment_choices(species, target.spin, atoms)
+    frag_limit = min((f.energy_hartree for f in frags), default=None)
+    final = assemble.lowest_over_branches(branches, n)
+    notes = assemble.curve_notes(final, limit.energy_hartree, frag_limit, target.multiplicity,
+                                 method.capabilities.spin_square)
+    notes += [f"reference ({ref_level.method}): {note}" for note in ref.result.notes if "above the separated atoms" not in note]
+    result = assemble.ScanResult(
+        tuple(final), {k: tuple(v) for k, v in branches.items()}, {k: tuple(v) for k, v in sweeps.items()},
+        state.reference[state.primary], ref.result.instability, limit, frag_limit, tally.computed,
+        tally.reused, tuple(notes), dict(state.reference), ref.result,
+    )
+    done = protocol.Scan(result, found, state, target)
+    refined = ()
+    if refine_points:
+        refined = await refine(session, method, species, target, done, tally)
+    summaries = await protocol.analyse_along(session, method, done, parts) if analyse else ()
+    return done, refined, summaries
+
+
+async def refine(session, method, species, target, done, tally: Tally) -> tuple:
+    """The refinement at this level: nine reference points 0.01 A apart about this level's coarse minimum
+    (a local fit through its well), warm-started from the nearest trusted reference point of the well
+    branch, each then computed at this level."""
+    centre = well_minimum(done.result)
+    if centre is None:
+        return ()
+    return await refine_at(session, method, species, target, done, centre[1], centre[0], tally)
+
+
+def well_minimum(result):
+    """(r_bohr of the coarse minimum by a local fit through the well (:func:`lcao.scan.assemble.well_points`),
+    the nearest trusted well point), or None."""
+    from ..errors import FitError
+    from ..fit.local import local_fit
+
+    good, _ = assemble.well_points(result)
+    if len(good) < 5:
+        return None
+    try:
+        lf = local_fit([p.r_bohr for p in good], [p.energy_hartree for p in good])
+    except FitError:
+        return None
+    return lf.re, min(good, key=lambda p: abs(p.r_bohr - lf.re))
+
+
+async def refine_at(session, method, species, target, done, nearest, centre: float, tally: Tally) -> tuple:
+    """Refinement points at this level about ``centre`` (bohr): reference chains warm-started from the
+    reference solution behind ``nearest`` (a point of the scan ``done`` at this level, which keeps its
+    reference's warm start), then this level's energy at each. CurvePoints, increasing r."""
+    from . import protocol
+
+    ref_point = protocol.raw_point(done, nearest)
+    ref_level = method.reference_level(target.level)
+    ref_target = Target(target.atoms, target.charge, target.multiplicity, ref_level)
+    specs = planning.refinement(nearest.branch, centre, ref_point.warm if ref_point is not None else None)
+    ref_method = method_for(ref_level)
+    chains = await asyncio.gather(*(session.chain(ref_method, species, ref_target, s, tally) for s in specs))
+    merged: dict = {}
+    for c in chains:
+        merged.update(c)
+    name = specs[0].sweep
+    jobs = [(name, nearest.branch, merged[i]) for i in sorted(merged) if merged[i].usable]
+    got = await session.correlate(method, species, target, jobs, max(1, session.executor.workers), tally)
+    by_index = {i: got[(name, round(p.r_bohr, 8))] for i, p in merged.items() if (name, round(p.r_bohr, 8)) in got}
+    listed = assemble.curve_points(by_index, len(specs[0].r_all), nearest.branch, name)
+    return tuple(assemble.flag_outliers([q for q in listed if q is not None]))
