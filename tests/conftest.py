@@ -20,3 +20,18 @@ try:  # property-based tests: the first example pays for importing PySCF, so no 
     settings.load_profile("lcao")
 except ImportError:  # pragma: no cover
     pass
+
+
+def pytest_addoption(parser):
+    parser.addoption("--slow", action="store_true", help="also run the long checks (large bases, extrapolations)")
+
+
+def pytest_collection_modifyitems(config, items):
+    """Long checks (marked slow) run only with --slow (scripts/test --slow); they are left out, not skipped."""
+    if config.getoption("--slow"):
+        return
+    kept = [it for it in items if "slow" not in it.keywords]
+    left = [it for it in items if "slow" in it.keywords]
+    if left:
+        config.hook.pytest_deselected(items=left)
+        items[:] = kept

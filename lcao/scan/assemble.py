@@ -130,6 +130,46 @@ def lowest_over_branches(branches: dict, n: int) -> list:
     return flag_outliers(final)
 
 
+def switch_once(branches: dict, n: int) -> tuple[list, str | None]:
+    """The curve of a level on a reference with both branches: the restricted branch through the well, the
+    unrestricted one from the first distance (outward from where it begins) where its energy falls below
+    the restricted one's, to the end; where they never cross, from where the unrestricted branch begins
+    (the reference's instability). Returns (points, a note on the switch).
+
+    Neither "lowest energy" nor "lowest reference" serves a correlated level: on the restricted reference
+    of a stretched bond the correlated energy dives below the right curve (CCSD(T), MP2), and the
+    unrestricted reference just past its instability is spin-contaminated, so switching there puts a step
+    into the well of N2 at MP2/cc-pVDZ.
+    """
+    rest, uns = branches["restricted"], branches["unrestricted"]
+    start = next((i for i in range(n) if uns[i] is not None and uns[i].trusted), None)
+    if start is None:
+        return flag_outliers([r if r is not None else u for r, u in zip(rest, uns)]), None
+    switch, crossed = start, False
+    for i in range(start, n):
+        r, u = rest[i], uns[i]
+        if r is not None and r.trusted and u is not None and u.trusted and u.energy_hartree < r.energy_hartree:
+            switch, crossed = i, True
+            break
+    final = []
+    for i in range(n):
+        first, second = (rest[i], uns[i]) if i < switch else (uns[i], rest[i])
+        pick = first if (first is not None and first.trusted) else (second if second is not None and second.trusted
+                                                                    else (first if first is not None else second))
+        final.append(pick)
+    at = final[switch].r_angstrom if final[switch] is not None else float("nan")
+    if crossed:
+        note = (f"restricted reference through the well, unrestricted from {at:.3f} A, where its energy first falls"
+                " below the restricted one's")
+    else:
+        r, u = rest[switch], uns[switch]
+        step = (u.energy_hartree - r.energy_hartree) if (r is not None and u is not None and r.trusted and u.trusted) else None
+        note = (f"restricted reference through the well, unrestricted from {at:.3f} A, where the restricted reference"
+                " turns unstable: the two never cross over the grid" + (f", and the curve steps by {step:+.4f} Eh there"
+                                                                        if step is not None else ""))
+    return flag_outliers(final), note
+
+
 def curve_notes(final, limit_hartree: float, fragment_limit, multiplicity: int, spin_square: bool) -> list[str]:
     """The notes of a finished curve (see the module docstring)."""
     notes = []
@@ -186,18 +226,30 @@ def first_unstable(points, towards: str) -> int | None:
 def well_points(result: ScanResult) -> tuple[list, str]:
     """(the trusted points of the well, the well branch's name).
 
-    For a self-consistent method with both branches, the restricted branch (the state Hartree-Fock
-    tables report for a closed-shell singlet); for a level on a reference, and otherwise, the curve's
-    points (per distance the branch of the lowest reference: a correlated energy on the restricted
-    reference of a stretched bond can dive below the well and must not be taken for it).
+    With both branches, the restricted one (the state Hartree-Fock tables report for a closed-shell
+    singlet); for a level on a reference only its first well (:func:`first_well`): a correlated energy on
+    the restricted reference of a stretched bond can dive below the well and must not be taken for it.
+    Otherwise the curve's points.
     """
     branches = result.branches
-    if result.reference_scan is None and "restricted" in branches and "unrestricted" in branches:
-        return [p for p in branches["restricted"] if p is not None and p.trusted], "restricted"
+    if "restricted" in branches and "unrestricted" in branches:
+        rest = [p for p in branches["restricted"] if p is not None and p.trusted]
+        return (rest if result.reference_scan is None else first_well(rest)), "restricted"
     well = [p for p in result.points if p.trusted]
     if not well:
         return [], "none"
     return well, min(well, key=lambda p: p.energy_hartree).branch
+
+
+def first_well(points) -> list:
+    """The points from the start up to the first maximum after the first minimum (outward)."""
+    e = [p.energy_hartree for p in points]
+    i = 1
+    while i < len(e) and e[i] < e[i - 1]:
+        i += 1
+    while i < len(e) and e[i] >= e[i - 1]:
+        i += 1
+    return list(points[:i])
 
 
 def fit_input(result: ScanResult, refined, isotopes, symbols):

@@ -90,9 +90,14 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
     limit = separated_atoms(species, atoms)
     frags = fragment_choices(species, target.spin, atoms)
     frag_limit = min((f.energy_hartree for f in frags), default=None)
-    final = assemble.lowest_over_branches(branches, n)
-    notes = assemble.curve_notes(final, limit.energy_hartree, frag_limit, target.multiplicity,
-                                 method.capabilities.spin_square)
+    notes = []
+    if "restricted" in branches and "unrestricted" in branches:
+        final, switch = assemble.switch_once(branches, n)
+        notes.append(switch)
+    else:
+        final = assemble.lowest_over_branches(branches, n)
+    notes += assemble.curve_notes(final, limit.energy_hartree, frag_limit, target.multiplicity,
+                                  method.capabilities.spin_square)
     for t, s in ((tx, sx), (ty, sy)):
         notes += [f"{t.level.text}: {note}" for note in s.result.notes if "above the separated atoms" not in note]
     state = method.state_plan(target.level, target.multiplicity)

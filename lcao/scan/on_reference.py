@@ -3,9 +3,10 @@
 The reference level's curve is computed first, with the whole protocol (its sweeps are stored under the
 reference level and shared by every level on it). Then the level's energy is computed once at every
 trusted reference point of every branch, each point independently (the tasks spread over the workers),
-and the separated atoms at the same level beside them. Per distance the branch whose *reference* is
-lowest is kept (:func:`lcao.scan.assemble.lowest_over_branches`): a correlated energy is not
-variational, and on the restricted reference of a stretched bond it can fall below the right branch's.
+and the separated atoms at the same level beside them. A closed-shell curve with both branches takes the
+restricted one through the well and switches once to the unrestricted one
+(:func:`lcao.scan.assemble.switch_once`): a correlated energy is not variational, and on the restricted
+reference of a stretched bond it can fall below the right curve.
 The refinement about the minimum follows the reference's well branch at the level's own minimum.
 """
 
@@ -67,9 +68,14 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
     limit = separated_atoms(species, atoms)
     frags = fragment_choices(species, target.spin, atoms)
     frag_limit = min((f.energy_hartree for f in frags), default=None)
-    final = assemble.lowest_over_branches(branches, n)
-    notes = assemble.curve_notes(final, limit.energy_hartree, frag_limit, target.multiplicity,
-                                 method.capabilities.spin_square)
+    notes = []
+    if "restricted" in branches and "unrestricted" in branches:
+        final, switch = assemble.switch_once(branches, n)
+        notes.append(switch)
+    else:
+        final = assemble.lowest_over_branches(branches, n)
+    notes += assemble.curve_notes(final, limit.energy_hartree, frag_limit, target.multiplicity,
+                                  method.capabilities.spin_square)
     notes += [f"reference ({ref_level.method}): {note}" for note in ref.result.notes if "above the separated atoms" not in note]
     result = assemble.ScanResult(
         tuple(final), {k: tuple(v) for k, v in branches.items()}, {k: tuple(v) for k, v in sweeps.items()},
