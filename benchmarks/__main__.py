@@ -9,6 +9,9 @@ Cases (each measured against its baseline in the same run):
   shell    the same series as a user sees it, whole processes from the shell: a hand-written script that
            loops over the same species and distances (each member's default grid) computing energies
            only, against ``lcao series``;
+  correlated  a 30-point CCSD(T)/cc-pVDZ curve of N2 against a hand loop (RHF and CCSD(T) with PySCF's
+           defaults at each distance); the well-level ladder of N2 (B3LYP/cc-pVDZ curve, CCSD(T)/cc-pVTZ
+           well and atoms), timed; the peak memory of one CCSD(T)/cc-pVQZ point;
   slow     (with --slow) a 40-point N2 curve at HF/cc-pVTZ.
 Curve, series and shell cases take the best of ``--repeat`` runs of each side, the sides run in turn, and
 every tool run starts with the process caches cleared (``lcao.clear_caches``; each run starts its own
@@ -173,10 +176,75 @@ def run_shell_case(rows, tmp, repeat: int = 1):
                     child_peak_mb()))
 
 
+CC_SCRIPT = """
+import resource, sys, time
+from pyscf import gto, scf, cc, lib
+lib.num_threads(1)
+mol = gto.M(atom="N 0 0 0; N 0 0 1.0977", basis="cc-pvqz", verbose=0)
+t = time.perf_counter()
+mf = scf.RHF(mol).run()
+mycc = cc.CCSD(mf, frozen=2).run()
+mycc.ccsd_t()
+print(time.perf_counter() - t, resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0)
+"""
+
+
+def cc_baseline(r):
+    """The hand loop of a correlated curve: RHF and CCSD(T) with PySCF's defaults at each distance."""
+    from pyscf import cc, gto, scf
+
+    for x in r:
+        mol = gto.M(atom=f"N 0 0 0; N 0 0 {x}", basis="cc-pvdz", verbose=0)
+        mycc = cc.CCSD(scf.RHF(mol).run()).run()
+        mycc.ccsd_t()
+
+
+def cc_tool(r):
+    import lcao
+    from lcao.methods.cache import clear_caches
+    from lcao.scan.grid import Grid
+    from lcao.units import angstrom_to_bohr
+
+    clear_caches()
+    return lcao.curve("N2", "CCSD(T)/cc-pVDZ", Grid(tuple(float(angstrom_to_bohr(x)) for x in r), "benchmark"),
+                      multiplicity=1)
+
+
+def run_correlated_case(rows):
+    """A 30-point CCSD(T)/cc-pVDZ curve of N2 (its default grid) against the hand loop; the well-level ladder
+    of N2 (B3LYP/cc-pVDZ curve, CCSD(T)/cc-pVTZ well and atoms) timed; the peak memory of one
+    CCSD(T)/cc-pVQZ point, in a process of its own."""
+    from lcao.scan.grid import default_grid
+    from lcao.species import parse_species
+    from lcao.units import bohr_to_angstrom
+
+    r = [float(bohr_to_angstrom(x)) for x in default_grid(*parse_species("N2").z, points=30).r_bohr]
+    tb, tt = best_in_turn(1, (cc_baseline, cc_tool), r)
+    rows.append(row("curve N2 CCSD(T)/cc-pVDZ (30 points)", "hand loop", tb, "lcao.curve", tt, len(r), peak_mb()))
+
+    import lcao
+    from lcao.methods.cache import clear_caches
+
+    clear_caches()
+    t, res = timed(lambda: lcao.curve("N2", "B3LYP/cc-pVDZ", points=20, multiplicity=1, analyse_points=False,
+                                      well_level="CCSD(T)/cc-pVTZ"))
+    rec = {"case": "ladder N2 B3LYP/cc-pVDZ curve, CCSD(T)/cc-pVTZ well", "tool_s": t, "points": res.computed,
+           "peak_rss_mb": peak_mb()}
+    rows.append(rec)
+    print(f"{rec['case']:58s} {t:7.1f} s for {res.computed} points  peak {rec['peak_rss_mb']:5.0f} MB")
+    env = dict(os.environ, OMP_NUM_THREADS="1")
+    out = subprocess.run([sys.executable, "-c", CC_SCRIPT], check=True, env=env, capture_output=True, text=True)
+    seconds, mb = (float(x) for x in out.stdout.split())
+    rec = {"case": "one CCSD(T)/cc-pVQZ point of N2 (frozen core)", "tool_s": seconds, "peak_rss_mb": mb}
+    rows.append(rec)
+    print(f"{rec['case']:58s} {seconds:7.1f} s  peak {mb:5.0f} MB")
+
+
 def main(argv=None):
     p = argparse.ArgumentParser(prog="python -m benchmarks", description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("--points", type=int, default=40)
-    p.add_argument("--cases", default="curve,series,shell", help="comma-separated: curve, series, shell, slow")
+    p.add_argument("--cases", default="curve,series,shell,correlated",
+                   help="comma-separated: curve, series, shell, correlated, slow")
     p.add_argument("--slow", action="store_true", help="also run the cc-pVTZ curve")
     p.add_argument("--repeat", type=int, default=3, help="runs of each curve, series and shell case; the shortest counts (default 3)")
     p.add_argument("--out", default=os.path.join(os.path.dirname(__file__), "results", "latest.json"))
@@ -206,6 +274,8 @@ def main(argv=None):
             run_series_case(rows, tmp, args.repeat)
         if "shell" in cases:
             run_shell_case(rows, tmp, args.repeat)
+    if "correlated" in cases:
+        run_correlated_case(rows)
     os.makedirs(os.path.dirname(args.out), exist_ok=True)
     with open(args.out, "w") as fh:
         json.dump({"python": sys.version, "cpu_count": os.cpu_count(), "cases": rows}, fh, indent=2)

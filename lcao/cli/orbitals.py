@@ -57,10 +57,14 @@ def _distance(text):
 
 
 def table_lines(res) -> list[str]:
+    from ..methods import method_for
+
     a = res.analysis
+    note = method_for(res.level).orbitals_note(res.level)
     lines = [
         f"{res.species.label}  {res.level.text}  multiplicity {res.multiplicity}  r = {res.point.r_angstrom:.4f} A"
         f"  E = {res.point.energy_hartree:.8f} Eh  ({res.branch_choice})",
+        *([f"  {note}"] if note else []),
         f"  {'spin':5s} {'label':10s} {'energy/Eh':>10s} {'occ':>4s}  {'formal class':13s} {'overlap pop.':>12s}"
         f" {'(character)':13s} {'valence name':14s} main AO components",
     ]

@@ -74,8 +74,20 @@ def curve_document(result) -> dict:
         "execution": result.execution,
         "caution": result.caution,
     }
+    if result.well_level is not None:
+        ws = result.well_scan
+        doc["well_level"] = None if ws is None else {
+            "level": {**result.well_level.as_dict(),
+                      "description": method_for(result.well_level).describe(result.well_level)},
+            "reference": ws.reference,
+            "points": [p.as_dict() for p in ws.points],
+            "limit_energy_hartree": ws.limit.energy_hartree,
+            "separated_atoms": ws.limit.as_dict(),
+            "notes": list(ws.notes),
+        }
     if result.along:
         doc["along_curve"] = list(result.along)
+        doc["along_curve_orbitals"] = method_for(result.level).orbitals_note(result.level) or "the level's own"
     if result.fit is not None:
         doc["fit"] = fit_document(result.fit, result.caution)
     elif result.fit_error:

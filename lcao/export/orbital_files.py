@@ -23,6 +23,7 @@ def orbitals_document(res) -> dict:
 
     from .. import __version__
     from ..analysis.orbitals import NONBONDING_OVERLAP
+    from ..methods import method_for
     from ..pipeline import caution_for
     from ..units import HARTREE_EV
 
@@ -53,6 +54,7 @@ def orbitals_document(res) -> dict:
         "other_solutions_here_hartree": res.other_branches,
         "binding_energy_vs_separated_atoms_ev": (res.limit_energy_hartree - res.point.energy_hartree) * HARTREE_EV,
         "multiplicity_candidates": [t.as_dict() for t in res.candidates],
+        "orbitals_of": method_for(res.level).orbitals_note(res.level) or "the level's own canonical orbitals",
         "orbitals": mos,
         "bond_orders": a.bond_orders(),
         "bond_order_definitions": {
