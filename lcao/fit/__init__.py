@@ -176,14 +176,16 @@ def fit_curve(inp: FitInput) -> CurveFit:
         FitError: too few trusted points or no minimum inside the grid.
     """
     mu = inp.mu
-    if len(inp.well_r) < 5:
-        raise FitError(f"only {len(inp.well_r)} trusted points in the well; a fit needs at least 5")
-    lf = local_fit(inp.well_r, inp.well_e)
+    lf = None
     if len(inp.refined_r) >= 7:
         try:
             lf = local_fit(inp.refined_r, inp.refined_e)
         except FitError as exc:
             log.info("refinement points not used: %s", exc)
+    if lf is None:
+        if len(inp.well_r) < 5:
+            raise FitError(f"only {len(inp.well_r)} trusted points in the well; a fit needs at least 5")
+        lf = local_fit(inp.well_r, inp.well_e)
     consts = dunham_constants(lf.re, lf.k, lf.c3, lf.c4, mu)
     notes = []
     gap = inp.limit_e - lf.e_min

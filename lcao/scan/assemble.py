@@ -233,8 +233,9 @@ def well_points(result: ScanResult) -> tuple[list, str]:
     """
     branches = result.branches
     if "restricted" in branches and "unrestricted" in branches:
-        rest = [p for p in branches["restricted"] if p is not None and p.trusted]
-        return (rest if result.reference_scan is None else first_well(rest)), "restricted"
+        if result.reference_scan is not None:
+            return first_well(branches["restricted"]), "restricted"
+        return [p for p in branches["restricted"] if p is not None and p.trusted], "restricted"
     well = [p for p in result.points if p.trusted]
     if not well:
         return [], "none"
@@ -242,14 +243,21 @@ def well_points(result: ScanResult) -> tuple[list, str]:
 
 
 def first_well(points) -> list:
-    """The points from the start up to the first maximum after the first minimum (outward)."""
-    e = [p.energy_hartree for p in points]
-    i = 1
-    while i < len(e) and e[i] < e[i - 1]:
-        i += 1
-    while i < len(e) and e[i] >= e[i - 1]:
-        i += 1
-    return list(points[:i])
+    """The trusted points of a branch (in grid order, None where not computed) from the start up to the
+    first maximum after the first minimum, or up to the first untrusted point after that minimum."""
+    out: list = []
+    descending = True
+    for p in points:
+        if p is None or not p.trusted:
+            if out and not descending:
+                break
+            continue
+        if out and descending and p.energy_hartree >= out[-1].energy_hartree:
+            descending = False
+        elif out and not descending and p.energy_hartree < out[-1].energy_hartree:
+            break
+        out.append(p)
+    return out
 
 
 def fit_input(result: ScanResult, refined, isotopes, symbols):

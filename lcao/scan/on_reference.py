@@ -107,13 +107,16 @@ def well_minimum(result):
     from ..fit.local import local_fit
 
     good, _ = assemble.well_points(result)
-    if len(good) < 5:
+    if len(good) < 3:
         return None
     try:
-        lf = local_fit([p.r_bohr for p in good], [p.energy_hartree for p in good])
-    except FitError:
-        return None
-    return lf.re, min(good, key=lambda p: abs(p.r_bohr - lf.re))
+        re_ = local_fit([p.r_bohr for p in good], [p.energy_hartree for p in good]).re
+    except FitError:  # too few points for a quartic, or the lowest at an end: a parabola through the lowest
+        low = min(range(len(good)), key=lambda i: good[i].energy_hartree)
+        if low in (0, len(good) - 1):
+            return None
+        re_ = planning.next_centre(good, 0.0)
+    return re_, min(good, key=lambda p: abs(p.r_bohr - re_))
 
 
 async def refine_at(session, method, species, target, done, nearest, centre: float, tally: Tally) -> tuple:
@@ -125,15 +128,19 @@ async def refine_at(session, method, species, target, done, nearest, centre: flo
     ref_point = protocol.raw_point(done, nearest)
     ref_level = method.reference_level(target.level)
     ref_target = Target(target.atoms, target.charge, target.multiplicity, ref_level)
-    specs = planning.refinement(nearest.branch, centre, ref_point.warm if ref_point is not None else None)
     ref_method = method_for(ref_level)
-    chains = await asyncio.gather(*(session.chain(ref_method, species, ref_target, s, tally) for s in specs))
-    merged: dict = {}
-    for c in chains:
-        merged.update(c)
-    name = specs[0].sweep
-    jobs = [(name, nearest.branch, merged[i]) for i in sorted(merged) if merged[i].usable]
-    got = await session.correlate(method, species, target, jobs, max(1, session.executor.workers), tally)
-    by_index = {i: got[(name, round(p.r_bohr, 8))] for i, p in merged.items() if (name, round(p.r_bohr, 8)) in got}
-    listed = assemble.curve_points(by_index, len(specs[0].r_all), nearest.branch, name)
-    return tuple(assemble.flag_outliers([q for q in listed if q is not None]))
+
+    async def window(centre_, start):
+        specs = planning.refinement(nearest.branch, centre_, start)
+        chains = await asyncio.gather(*(session.chain(ref_method, species, ref_target, s, tally) for s in specs))
+        merged: dict = {}
+        for c in chains:
+            merged.update(c)
+        name = specs[0].sweep
+        jobs = [(name, nearest.branch, merged[i]) for i in sorted(merged) if merged[i].usable]
+        got = await session.correlate(method, species, target, jobs, max(1, session.executor.workers), tally)
+        by_index = {i: got[(name, round(p.r_bohr, 8))] for i, p in merged.items() if (name, round(p.r_bohr, 8)) in got}
+        listed = assemble.curve_points(by_index, len(specs[0].r_all), nearest.branch, name)
+        return assemble.flag_outliers([q for q in listed if q is not None]), merged
+
+    return await protocol.moving_refinement(window, centre, ref_point.warm if ref_point is not None else None)

@@ -89,6 +89,27 @@ def refinement(branch: str, r_centre: float, start) -> list[SweepSpec]:
             SweepSpec(name, branch, r_new, tuple(range(mid - 1, -1, -1)), start, mid)]
 
 
+def next_centre(points, step: float) -> float:
+    """Where the minimum lies when it is outside the points (bohr): the vertex of a parabola through the
+    three lowest (at most two windows beyond the lowest point), or one window beyond the lowest point
+    where the three are not convex."""
+    import numpy as np
+
+    low = min(range(len(points)), key=lambda i: points[i].energy_hartree)
+    pick = sorted(range(len(points)), key=lambda i: abs(i - low))[:3]
+    r = np.array([points[i].r_bohr for i in pick])
+    e = np.array([points[i].energy_hartree for i in pick])
+    a, b, _ = np.polyfit(r, e, 2)
+    r_low = points[low].r_bohr
+    if a > 0:
+        return float(np.clip(-b / (2 * a), r_low - 4 * REFINE_HALF * step, r_low + 4 * REFINE_HALF * step))
+    return r_low + (REFINE_HALF * step if low == len(points) - 1 else -REFINE_HALF * step)
+
+
+#: where the refinement's fit finds no minimum inside its nine points, they move this many times at most
+MAX_REFINE_MOVES = 2
+
+
 def expected_points(n: int, plan, placements: int = 1, probes: int = 0) -> int:
     """About how many points a curve of ``n`` grid points computes (for an estimate of its time): the sweeps
     of the plan (the secondary branch over about two thirds of the grid), the refinement and the probes."""

@@ -252,13 +252,46 @@ async def _refine(session, method, species, target, found, branches, well_branch
         return ()
     nearest = min(good, key=lambda p: abs(p.r_bohr - lf.re))
     raw = _raw(found, nearest)
-    specs = planning.refinement(nearest.branch, lf.re, raw.warm if raw is not None else None)
-    got = await asyncio.gather(*(session.chain(method, species, target, s, tally) for s in specs))
-    merged: dict = {}
-    for pts_ in got:
-        merged.update(pts_)
-    name = specs[0].sweep
-    return tuple(assemble.flag_outliers(assemble.curve_points(merged, len(specs[0].r_all), nearest.branch, name)))
+
+    async def window(centre, start):
+        specs = planning.refinement(nearest.branch, centre, start)
+        got = await asyncio.gather(*(session.chain(method, species, target, s, tally) for s in specs))
+        merged: dict = {}
+        for pts_ in got:
+            merged.update(pts_)
+        name = specs[0].sweep
+        return assemble.flag_outliers(assemble.curve_points(merged, len(specs[0].r_all), nearest.branch, name)), merged
+
+    return await moving_refinement(window, lf.re, raw.warm if raw is not None else None)
+
+
+async def moving_refinement(window, centre: float, start) -> tuple:
+    """The refinement windows about ``centre``: ``window(centre, start)`` computes nine points (CurvePoints,
+    and their computed points by index); where a local fit finds no minimum inside them, the next window is
+    centred where the minimum lies (:func:`lcao.scan.plan.next_centre`), started from the lowest point so
+    far (at most :data:`lcao.scan.plan.MAX_REFINE_MOVES` moves). Returns every window's points, increasing r."""
+    from ..errors import FitError
+    from ..fit.local import local_fit
+    from ..units import angstrom_to_bohr
+
+    step = float(angstrom_to_bohr(planning.REFINE_STEP_ANGSTROM))
+    kept: dict = {}
+    for move in range(planning.MAX_REFINE_MOVES + 1):
+        points, raws = await window(centre, start)
+        for p in points:
+            if p is not None:
+                kept[round(p.r_bohr, 8)] = p
+        good = [p for p in points if p is not None and p.trusted]
+        if len(good) < 5 or move == planning.MAX_REFINE_MOVES:
+            break
+        try:
+            local_fit([p.r_bohr for p in good], [p.energy_hartree for p in good])
+            break
+        except FitError:
+            centre = planning.next_centre(good, step)
+            lowest = min(good, key=lambda p: p.energy_hartree)
+            start = next((q.warm for q in raws.values() if abs(q.r_bohr - lowest.r_bohr) < 1e-9), start)
+    return tuple(kept[k] for k in sorted(kept))
 
 
 async def analyse_along(session, method, scan_: Scan, parts: int) -> tuple:

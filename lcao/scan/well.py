@@ -16,6 +16,7 @@ from ..methods import method_for
 from ..methods.base import Target
 from ..units import angstrom_to_bohr
 from .grid import Grid
+from . import plan as planning
 from .plan import REFINE_HALF, REFINE_STEP_ANGSTROM
 from .session import Tally
 
@@ -42,24 +43,8 @@ async def well_scan(session, species, level, multiplicity: int, r_centre: float,
         try:
             re_ = local_fit([p.r_bohr for p in good], [p.energy_hartree for p in good]).re
         except FitError:  # the minimum lies outside: where a parabola through the lowest points puts it
-            re_ = _outside_minimum(good, step)
+            re_ = planning.next_centre(good, step)
         if abs(re_ - centre) <= 2 * step or move == MAX_MOVES:
             return done.result, good
         centre = re_
     return done.result, good  # pragma: no cover - the loop returns
-
-
-def _outside_minimum(points, step: float) -> float:
-    """The vertex of a parabola through the three lowest points (at most two windows away from the lowest
-    point), or one window beyond the lowest point where the three are not convex."""
-    import numpy as np
-
-    low = min(range(len(points)), key=lambda i: points[i].energy_hartree)
-    pick = sorted(range(len(points)), key=lambda i: abs(i - low))[:3]
-    r = np.array([points[i].r_bohr for i in pick])
-    e = np.array([points[i].energy_hartree for i in pick])
-    a, b, _ = np.polyfit(r, e, 2)
-    r_low = points[low].r_bohr
-    if a > 0:
-        return float(np.clip(-b / (2 * a), r_low - 4 * REFINE_HALF * step, r_low + 4 * REFINE_HALF * step))
-    return r_low + (REFINE_HALF * step if low == len(points) - 1 else -REFINE_HALF * step)
