@@ -21,7 +21,7 @@ __all__ = ["curve", "orbitals", "run_series", "members_from", "parse_species", "
 
 _LAZY = {
     "curve": ("pipeline", "curve"),
-    "orbitals": ("pipeline", "orbitals"),
+    "orbitals": ("single_point", "orbitals"),
     "run_series": ("series", "run_series"),
     "members_from": ("series", "members_from"),
     "parse_species": ("species", "parse_species"),

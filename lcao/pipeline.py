@@ -1,15 +1,15 @@
 """The pipeline without the CLI: species -> method -> scan -> analysis -> fit.
 
-``lcao.curve('NO', 'HF/6-31G')`` returns a :class:`CurveResult`; ``lcao.orbitals(...)`` an
-:class:`OrbitalsResult`. Both run their tasks on an executor (:mod:`lcao.execute`) through a
-:class:`lcao.scan.session.Session`, which alone writes the store. The coroutines
-:func:`curve_async` and :func:`orbitals_async` are the same work for callers that run several curves
-on one session (a series). Text summaries live in :mod:`lcao.report`.
+``lcao.curve('NO', 'HF/6-31G')`` returns a :class:`CurveResult` (``lcao.orbitals(...)``, in
+:mod:`lcao.single_point`, an :class:`lcao.single_point.OrbitalsResult`). Both run their tasks on an
+executor (:mod:`lcao.execute`) through a :class:`lcao.scan.session.Session`, which alone writes the store.
+The coroutine :func:`curve_async` is the same work for callers that run several curves on one session (a
+series). What a computed curve says (counterpoise, verdict, fit) is worked out in :mod:`lcao.outcome`;
+text summaries live in :mod:`lcao.report`.
 """
 
 from __future__ import annotations
 
-import asyncio
 import logging
 from dataclasses import dataclass, field, replace
 
@@ -20,6 +20,7 @@ from .methods.base import Target
 from .points import CurvePoint
 from .scan.assemble import ScanResult
 from .scan.grid import Grid, default_grid
+from .outcome import branch_fit, counterpoise_errors, with_fit
 from .scan.session import Tally, open_session, run_sync
 from .species import Species, parse_species
 
@@ -68,6 +69,20 @@ class CurveResult:
     #: the higher level of the well and separated atoms, with its scan about the minimum (or None)
     well_level: Level | None = None
     well_scan: ScanResult | None = None
+    #: the basis-set superposition error per distance (round(r_bohr, 8) -> hartree) when the counterpoise
+    #: correction was computed, and why (asked, or turned on by itself)
+    counterpoise: dict | None = None
+    counterpoise_reason: str | None = None
+    #: for an anion, the curve of the species with one electron fewer at the same distances
+    neutral: "CurveResult | None" = None
+    #: what the curve says about the molecule (:class:`lcao.fit.verdict.Verdict`)
+    verdict: object = None
+    #: which solution the curve follows where the lowest one breaks the molecule's spatial symmetry:
+    #: 'lowest' (the broken-symmetry solution) or 'symmetric' (the symmetry-adapted branch), see
+    #: :class:`lcao.scan.assemble.SpatialBreaking`; the other one's fit is ``other_branch``
+    #: (:class:`lcao.outcome.BranchFit`)
+    branch: str = "lowest"
+    other_branch: object = None
 
     @property
     def points(self) -> tuple[CurvePoint, ...]:
@@ -126,7 +141,7 @@ def _check_electrons_fit(sp: Species, lv: Level) -> None:
 def curve(species, level, grid: Grid | None = None, *, multiplicity: int | None = None, charge: int | None = None,
           points: int | None = None, store=None, fit: bool = True, isotopes: str | None = None,
           analyse_points: bool = True, refine: bool = True, progress=None, workers: int | None = None,
-          executor=None, well_level=None) -> CurveResult:
+          executor=None, well_level=None, counterpoise: bool = False, branch: str = "lowest") -> CurveResult:
     """Compute a potential-energy curve with the state-following protocol.
 
     Args:
@@ -146,6 +161,11 @@ def curve(species, level, grid: Grid | None = None, *, multiplicity: int | None 
         executor: an :class:`lcao.execute.Executor` to run on (it stays open), instead of ``workers``.
         well_level: a higher level (text or :class:`Level`) for the well and the separated atoms: r_e,
             the vibrational and rotational constants and D_e come from it (:mod:`lcao.scan.well`).
+        counterpoise: compute the counterpoise correction and fit the corrected curve
+            (:mod:`lcao.scan.counterpoise`); it is turned on by itself for rare-gas pairs and for wells
+            shallower than :data:`lcao.outcome.AUTO_COUNTERPOISE_EV`.
+        branch: 'lowest' (default) or 'symmetric': where the lowest solution breaks the molecule's
+            spatial symmetry, the curve follows it or the symmetry-adapted branch; the other is fitted too.
 
     Returns:
         CurveResult
@@ -158,6 +178,7 @@ def curve(species, level, grid: Grid | None = None, *, multiplicity: int | None 
     from .masses import resolve_isotopes
 
     sp, lv, gr = resolve_inputs(species, level, grid, multiplicity, charge, points)
+    check_branch(branch)
     wl = None
     if well_level is not None:
         _, wl, _ = resolve_inputs(sp, well_level, gr, multiplicity)
@@ -165,11 +186,20 @@ def curve(species, level, grid: Grid | None = None, *, multiplicity: int | None 
     size = max(basis_size(sp, lv), basis_size(sp, wl) if wl is not None else 0)
     with open_session(store, workers, size, progress, executor) as session:
         return run_sync(curve_async(session, sp, lv, gr, multiplicity, iso, fit=fit, analyse_points=analyse_points,
-                                    refine=refine, well_level=wl))
+                                    refine=refine, well_level=wl, counterpoise=counterpoise, branch=branch))
+
+
+#: the choices of ``branch`` (see :func:`curve`)
+BRANCH_CHOICES = ("lowest", "symmetric")
+
+
+def check_branch(branch: str) -> None:
+    if branch not in BRANCH_CHOICES:
+        raise InputError(f"unknown branch {branch!r}; choose one of {', '.join(BRANCH_CHOICES)}")
 
 
 async def curve_async(session, sp, lv, gr, multiplicity, iso, *, fit=True, analyse_points=True, refine=True,
-                      well_level=None) -> CurveResult:
+                      well_level=None, counterpoise=False, branch="lowest") -> CurveResult:
     """The work of :func:`curve` on a session (inputs already resolved)."""
     from .scan import protocol
 
@@ -184,9 +214,27 @@ async def curve_async(session, sp, lv, gr, multiplicity, iso, *, fit=True, analy
         trials, mult, source = (), multiplicity, "given"
     target = Target(sp.atoms, sp.charge, mult, lv)
     tally = Tally()
-    sc, refined, summaries = await protocol.scan(
-        session, method, sp, target, gr.r_bohr, tally, refine_points=fit and refine,
-        analyse=analyse_points and method.capabilities.orbitals, parts=max(1, session.executor.workers))
+    notes = []
+
+    async def over(grid):
+        return await protocol.scan(session, method, sp, target, grid.r_bohr, tally, refine_points=fit and refine,
+                                   analyse=analyse_points and method.capabilities.orbitals,
+                                   parts=max(1, session.executor.workers))
+
+    sc, refined, summaries = await over(gr)
+    if gr.origin.startswith("default") and len(gr) > 1:
+        from .scan import reach
+
+        while reach.reaches(sc.result) is False:
+            longer = reach.extended(gr)
+            if longer is None:
+                notes.append(f"the default grid was extended to its cap of {reach.CAP_ANGSTROM:g} A and the curve"
+                             " still lies above its separated atoms there")
+                break
+            gr = longer
+            sc, refined, summaries = await over(gr)
+        if gr.origin.endswith("to reach the atoms"):
+            notes.append(f"the default grid was {gr.origin.split(', ', 1)[1]}")
     well = None
     if well_level is not None and fit:
         from .scan.on_reference import well_minimum
@@ -194,154 +242,42 @@ async def curve_async(session, sp, lv, gr, multiplicity, iso, *, fit=True, analy
 
         centre = well_minimum(sc.result)
         if centre is not None:
-            if refined:
+            good = [p for p in refined if p.trusted]
+            if len(good) >= 5:
+                from .errors import FitError
                 from .fit.local import local_fit
 
-                good = [p for p in refined if p.trusted]
-                if len(good) >= 5:
+                try:
                     centre = (local_fit([p.r_bohr for p in good], [p.energy_hartree for p in good]).re, centre[1])
+                except FitError:  # the refinement missed the minimum: the coarse one stands
+                    pass
             well = await well_scan(session, sp, well_level, mult, centre[0], tally)
+    scanned, other = sc.result, None
+    spatial = scanned.spatial
+    if spatial is not None:
+        views = {"lowest": (scanned, tuple(refined)), "symmetric": (spatial.view(scanned), spatial.refined)}
+        (scanned, refined), other = views[branch], views["symmetric" if branch == "lowest" else "lowest"]
+    elif branch == "symmetric":
+        notes.append("the lowest solution keeps the molecule's spatial symmetry: it is the symmetric branch")
+    errors, why, neutral = None, None, None
+    if fit:
+        both = tuple(refined) + (tuple(other[1]) if other else ())
+        errors, why = await counterpoise_errors(session, method, sp, target, scanned, both, counterpoise, tally)
+        if why is not None and errors is None:
+            notes.append(why)
+        if sp.charge < 0:
+            neutral = await curve_async(session, Species(sp.atoms, sp.charge + 1), lv, gr, None, iso, fit=False,
+                                        analyse_points=False, refine=False)
     execution = {**session.executor.describe(), "processes_used": len(tally.pids | probes.pids)}
-    result = CurveResult(sp, lv, gr, mult, source, trials, sc.result, isotopes=iso,
+    result = CurveResult(sp, lv, gr, mult, source, trials, scanned, isotopes=iso,
                          computed=tally.computed + probes.computed, reused=tally.reused + probes.reused,
                          along=tuple(summaries), refined=tuple(refined), execution=execution,
-                         well_level=well_level, well_scan=well[0] if well else None)
-    return _with_fit(result, well[1] if well else None) if fit else result
-
-
-def _with_fit(result: CurveResult, well_points=None) -> CurveResult:
-    from .errors import FitError
-    from .fit import fit_curve, with_well_level
-    from .fit.spin_orbit import correction
-    from .scan.assemble import fit_input
-
-    try:
-        f = fit_curve(fit_input(result.scan, result.refined, result.isotopes, result.species.atoms))
-    except FitError as exc:
-        return replace(result, fit_error=str(exc))
-    if result.well_level is not None:
-        if not well_points:
-            return replace(result, fit_error=f"no trusted points of the well at {result.well_level.text}")
-        try:
-            f = with_well_level(f, [p.r_bohr for p in well_points], [p.energy_hartree for p in well_points],
-                                result.well_scan.limit.energy_hartree, result.well_level.text, result.level.text)
-        except FitError as exc:
-            return replace(result, fit_error=f"the well at {result.well_level.text}: {exc}")
-    limit = result.well_scan.limit if result.well_scan is not None else result.scan.limit
-    return replace(result, fit=replace(f, spin_orbit=correction([(a.symbol, a.charge) for a in limit.atoms])))
-
-
-@dataclass(frozen=True)
-class OrbitalsResult:
-    """Orbital analysis of one point.
-
-    Attributes:
-        species, level, multiplicity: as computed; candidates: multiplicities tried.
-        point: the analysed curve point (distance, energy, branch, sweep).
-        analysis: :class:`lcao.analysis.OrbitalAnalysis`.
-        branch_choice: how the branch was chosen.
-        other_branches: {branch: energy_hartree} of the other solutions at this distance.
-        atom_levels: per atom, a tuple of (shell label, spin, energy, occupation).
-        curve: the curve the equilibrium distance came from (``at_minimum``), else None.
-    """
-
-    species: Species
-    level: Level
-    multiplicity: int
-    candidates: tuple
-    point: CurvePoint
-    analysis: object
-    branch_choice: str
-    other_branches: dict
-    atom_levels: tuple
-    limit_energy_hartree: float
-    curve: CurveResult | None = None
-
-
-BRANCH_CHOICES = ("well", "lowest", "restricted", "unrestricted")
-
-
-def orbitals(species, level, r_angstrom: float | None = None, *, at_minimum: bool = False, branch: str = "well",
-             multiplicity: int | None = None, charge: int | None = None, grid: Grid | None = None, store=None,
-             base: CurveResult | None = None, progress=None, workers: int | None = None, executor=None) -> OrbitalsResult:
-    """Orbital characters, bond orders and spin at one distance.
-
-    Args:
-        species, level: as for :func:`curve`.
-        r_angstrom: the distance; or ``at_minimum=True`` for the fitted r_e of a curve over ``grid``
-            (default grid when None).
-        branch: 'well' (the restricted solution where a curve has both branches, as the curve fit
-            uses it; otherwise the lowest), 'lowest', 'restricted' or 'unrestricted'.
-        base: with ``at_minimum``, a curve already computed for this species and level (its fit gives
-            r_e); otherwise the curve is computed here.
-    """
-    if branch not in BRANCH_CHOICES:
-        raise InputError(f"branch {branch!r} is not one of {', '.join(BRANCH_CHOICES)}")
-    if (r_angstrom is None) == (not at_minimum):
-        raise InputError("give a distance or ask for the curve minimum, not both or neither")
-    sp, lv, _ = resolve_inputs(species, level, grid or Grid((2.0,)), multiplicity, charge)
-    if not method_for(lv).capabilities.orbitals:
-        raise InputError(f"{lv.method} gives no orbitals for an analysis")
-    with open_session(store, workers, basis_size(sp, lv), progress, executor) as session:
-        return run_sync(orbitals_async(session, sp, lv, r_angstrom, at_minimum=at_minimum, branch=branch,
-                                       multiplicity=multiplicity, grid=grid, base=base))
-
-
-async def orbitals_async(session, sp, lv, r_angstrom=None, *, at_minimum=False, branch="well", multiplicity=None,
-                         grid=None, base=None) -> OrbitalsResult:
-    """The work of :func:`orbitals` on a session (inputs already resolved)."""
-    from .errors import CalculationError, FitError
-    from .masses import resolve_isotopes
-    from .scan import protocol
-    from .scan.tasks import AnalysisTask, AtomLevelsTask
-    from .units import angstrom_to_bohr
-
-    iso = resolve_isotopes(sp.atoms)
-    if at_minimum:
-        if base is None:
-            gr = grid if grid is not None else default_grid(*sp.z)
-            base = await curve_async(session, sp, lv, gr, multiplicity, iso, analyse_points=False)
-        if base.fit is None:
-            raise FitError(f"no curve minimum to analyse: {base.fit_error}")
-        r_bohr, multiplicity = base.fit.local.re, base.multiplicity
-    else:
-        base = None
-        r_bohr = float(angstrom_to_bohr(r_angstrom))
-    one = await curve_async(session, sp, lv, Grid((r_bohr,), "single point"), multiplicity, iso, fit=False,
-                            analyse_points=False)
-    res = one.scan
-    cands = {name: pts[0] for name, pts in res.branches.items() if pts and pts[0] is not None and pts[0].trusted}
-    lowest = res.points[0]
-    if branch == "lowest":
-        chosen, why = lowest, "lowest solution"
-    elif branch in ("restricted", "unrestricted"):
-        if branch not in cands:
-            raise InputError(f"there is no trusted {branch} solution at this distance; computed: {', '.join(cands) or 'none'}")
-        chosen, why = cands[branch], f"{branch} branch, as asked"
-    elif "restricted" in cands and "unrestricted" in cands:
-        chosen, why = cands["restricted"], "restricted branch (the well of a closed-shell singlet)"
-    else:
-        chosen, why = lowest, "lowest solution"
-    if not chosen.trusted:
-        raise CalculationError(f"the solution at {chosen.r_angstrom:.4f} A is flagged: {chosen.flag}")
-    method = method_for(lv)
-    target = Target(sp.atoms, sp.charge, one.multiplicity, lv)
-    point = session.stored_point(sp, one.multiplicity, lv, chosen.sweep, chosen.r_bohr)
-    kept = _kept_point(session, one, chosen)
-    analysis_done, levels_done = await asyncio.gather(
-        session.run(AnalysisTask(method, target, ((kept or point, chosen.branch),), summary=False)),
-        session.run(AtomLevelsTask(method, lv, tuple(res.limit.atoms))),
-    )
-    analysis = analysis_done.value[0]
-    if analysis is None:
-        raise CalculationError(f"no orbital analysis at {chosen.r_angstrom:.4f} A")
-    others = {k: v.energy_hartree for k, v in cands.items() if v is not chosen}
-    return OrbitalsResult(sp, lv, one.multiplicity, base.candidates if base else one.candidates, chosen, analysis, why,
-                          others, levels_done.value, res.limit.energy_hartree, base)
-
-
-def _kept_point(session, one: CurveResult, chosen):
-    """The point as computed in this run (with its orbitals), when the session still holds it."""
-    from .scan.session import kept_key
-
-    return session.kept.get(kept_key(one.species, one.multiplicity, one.level, chosen.sweep, chosen.r_bohr))
+                         well_level=well_level, well_scan=well[0] if well else None, warnings=tuple(notes),
+                         counterpoise=errors, counterpoise_reason=why if errors is not None else None, neutral=neutral,
+                         branch=branch if spatial is not None else "lowest")
+    if not fit:
+        return result
+    done = with_fit(result, well[1] if well else None)
+    if other is not None:
+        done = replace(done, other_branch=branch_fit(result, *other))
+    return done

@@ -41,20 +41,55 @@ def summary_lines(result: CurveResult) -> list[str]:
     if low is not None:
         de = (result.limit_energy_hartree - low.energy_hartree) * HARTREE_EV
         lines.append(f"  lowest point: {low.r_angstrom:.4f} A, {low.energy_hartree:.8f} Eh ({low.branch})")
-        lines.append(f"  separated atoms: {result.limit_energy_hartree:.8f} Eh (lowest point lies {de:.3f} eV below)")
+        lines.append(f"  separated atoms: {result.limit_energy_hartree:.8f} Eh (lowest point lies {abs(de):.3f} eV"
+                     f" {'below' if de >= 0 else 'above'})")
     if result.scan.instability:
         a, b = result.scan.instability
         lines.append(
             f"  restricted solution turns unstable towards unrestricted between {_ang(a):.3f} and {_ang(b):.3f} A"
         )
-    if result.fit is not None:
+    if result.verdict is not None:
+        lines.append(f"  verdict: {result.verdict.detail}")
+    if result.other_branch is not None:
+        lines.append("  " + branch_line(result))
+    if result.counterpoise is not None:
+        worst = max((b for b in result.counterpoise.values() if b == b), default=0.0)
+        lines.append(f"  counterpoise correction ({result.counterpoise_reason}): BSSE up to {worst * HARTREE_EV * 1000:.2f} meV;"
+                     " the verdict and any fit are of the corrected curve (counterpoise in curve.json)")
+    if result.neutral is not None:
+        n = result.neutral
+        lines.append(f"  {n.species.label} (one electron fewer) computed at the same distances, multiplicity"
+                     f" {n.multiplicity}: see neutral_curve in curve.json")
+    from .fit.verdict import BOUND, METASTABLE
+
+    if result.fit is not None and (result.verdict is None or result.verdict.kind in (BOUND, METASTABLE)):
         lines.extend(fit_lines(result))
     for note in result.scan.notes + result.warnings:
         lines.append(f"  note: {note}")
-    if result.fit_error:
+    if result.fit_error and result.verdict is None:
         lines.append(f"  no fit: {result.fit_error}")
     lines.append(f"  caution: {result.caution}")
     return lines
+
+
+BRANCH_WORDS = {"lowest": "lowest (broken-symmetry)", "symmetric": "symmetry-adapted"}
+
+
+def branch_line(result: CurveResult) -> str:
+    """Which branch the curve follows where the lowest solution breaks the spatial symmetry, and the other's fit."""
+    from .fit.verdict import BOUND, METASTABLE
+    from .units import HARTREE_CM1, HARTREE_EV, bohr_to_angstrom
+
+    o = result.other_branch
+    text = f"branch: the curve follows the {BRANCH_WORDS[result.branch]} solution; the {BRANCH_WORDS[o.branch]} one"
+    if o.fit is not None and (o.verdict is None or o.verdict.kind in (BOUND, METASTABLE)) and o.fit.de is not None:
+        text += (f": r_e {float(bohr_to_angstrom(o.fit.local.re)):.4f} A, omega_e {o.fit.constants['we'] * HARTREE_CM1:.1f}"
+                 f" cm-1, D_e {o.fit.de * HARTREE_EV:.3f} eV")
+    elif o.verdict is not None:
+        text += f": {o.verdict.detail}"
+    elif o.fit_error:
+        text += f": no fit ({o.fit_error})"
+    return text + " (reference tables list the symmetry-adapted solution; fit.other_branch in curve.json)"
 
 
 def level_lines(level) -> list[str]:
@@ -126,17 +161,30 @@ def fit_lines(result: CurveResult) -> list[str]:
         lines.append(f"    r_e, omega_e, omega_e x_e, B_e, alpha_e, D_e and ZPE from {d['sources']['re']}; the Morse model"
                      f" and the vibrational levels from {d['sources']['morse']}")
     m = d["morse"]
-    if m is not None:
+    if m is not None and m["kind"] == "fitted":
         lines.append(
-            f"    Morse (model): D_e {m['de_ev']:.3f} +- {m['de_uncertainty_ev']:.3f} eV, a {m['a_per_angstrom']:.4f}"
-            f" +- {m['a_uncertainty_per_angstrom']:.4f} 1/A, r_e {m['re_angstrom']:.4f} A;"
+            f"    Morse (model): D_e {m['de_ev']:.3f} {_pm(m['de_uncertainty_ev'], '.3f')} eV, a {m['a_per_angstrom']:.4f}"
+            f" {_pm(m['a_uncertainty_per_angstrom'], '.4f')} 1/A, r_e {m['re_angstrom']:.4f} A;"
             f" window {m['window_angstrom'][0]:.3f}-{m['window_angstrom'][1]:.3f} A ({m['window_points']} points, ends at {m['window_end']});"
             f" residual RMS {m['rms_residual_hartree']:.1e} Eh"
+        )
+    elif m is not None:
+        lines.append(
+            f"    Morse (derived from the local constants, not fitted): D_e {m['de_ev']:.3f} eV (separated atoms),"
+            f" a {m['a_per_angstrom']:.4f} {_pm(m['a_uncertainty_per_angstrom'], '.4f')} 1/A = omega_e sqrt(mu/(2 D_e)),"
+            f" r_e {m['re_angstrom']:.4f} A; not fitted because {d['morse_error']}"
         )
     elif d["morse_error"]:
         lines.append(f"    no Morse fit: {d['morse_error']}")
     lines.append(f"    {d['de_note']}")
+    for w in d["warnings"]:
+        lines.append(f"    warning: {w}")
     return lines
+
+
+def _pm(x, fmt) -> str:
+    """'+- x', or a word where the uncertainty is not available."""
+    return "(uncertainty not available)" if x is None else f"+- {x:{fmt}}"
 
 
 def _handbook_mult(result: CurveResult):

@@ -83,6 +83,8 @@ class Member:
     multiplicity: int | None = None
     points: int | None = None
     well_level: Level | None = None
+    counterpoise: bool = False
+    branch: str = "lowest"
 
 
 @dataclass(frozen=True)
@@ -112,6 +114,11 @@ class SeriesRow:
         valence_levels: per valence MO at the minimum: label, kind, spin, energy_hartree, occupation,
             formal_class.
         notes: the curve's notes and the fit's warnings.
+        verdict: what the curve says (:class:`lcao.fit.verdict.Verdict`): a repulsive or unbound member is a
+            result with no constants, not a failure.
+        branch: the branch followed ('lowest' or 'symmetric'); spatial_broken: whether the lowest solution
+            breaks the molecule's spatial symmetry (both branches were then fitted); spatial_in_well: whether
+            that changes the well (:func:`lcao.outcome.branches_differ`).
     """
 
     species: str
@@ -129,6 +136,10 @@ class SeriesRow:
     handbook: dict = field(default_factory=dict)
     valence_levels: tuple = ()
     notes: tuple = ()
+    verdict: object = None
+    branch: str = "lowest"
+    spatial_broken: bool = False
+    spatial_in_well: bool = False
 
 
 def _handbook(species: Species) -> dict:
@@ -145,7 +156,8 @@ async def run_member_async(session, member: Member) -> SeriesRow:
     """Curve, fit and orbitals at the minimum of one member on a session; failures become a row with
     the reason."""
     from .masses import resolve_isotopes
-    from .pipeline import curve_async, orbitals_async, resolve_inputs
+    from .pipeline import curve_async, resolve_inputs
+    from .single_point import orbitals_async
 
     sp, lv = member.species, member.level
     hb = _handbook(sp)
@@ -154,11 +166,21 @@ async def run_member_async(session, member: Member) -> SeriesRow:
         if member.well_level is not None:
             resolve_inputs(sp, member.well_level, grid, member.multiplicity)
         res = await curve_async(session, sp, lv, grid, member.multiplicity, resolve_isotopes(sp.atoms),
-                                analyse_points=False, well_level=member.well_level)
+                                analyse_points=False, well_level=member.well_level, counterpoise=member.counterpoise,
+                                branch=member.branch)
     except LcaoError as exc:
         return SeriesRow(sp.label, lv.text, "failed", str(exc), handbook=hb)
+    from .fit.verdict import BOUND, METASTABLE
+    from .outcome import branches_differ
+
     common = dict(multiplicity=res.multiplicity, reference=res.scan.reference, points=len(res.points),
-                  trusted_points=len(res.trusted_points), limit_energy_hartree=res.limit_energy_hartree, handbook=hb)
+                  trusted_points=len(res.trusted_points), limit_energy_hartree=res.limit_energy_hartree, handbook=hb,
+                  verdict=res.verdict, branch=res.branch, spatial_broken=res.scan.spatial is not None,
+                  spatial_in_well=branches_differ(res))
+    if res.verdict is not None and res.verdict.kind not in (BOUND, METASTABLE):
+        # a result: the curve says there is no bond here, and no constants are given that would invite misuse
+        return SeriesRow(sp.label, lv.text, "ok", None, fit=res.fit, notes=tuple(res.scan.notes) + res.warnings,
+                         orbital_error=f"no orbitals at a minimum: {res.verdict.kind}", **common)
     if res.fit is None:
         return SeriesRow(sp.label, lv.text, "failed", f"no fit: {res.fit_error}", notes=res.scan.notes, **common)
     summary, error, levels = None, None, ()
@@ -244,12 +266,14 @@ def run_series(members, store=None, *, workers: int | None = None, progress=None
     return tuple(rows)
 
 
-def members_from(species_texts, levels, grid=None, multiplicity=None, points=None, well_level=None) -> list[Member]:
+def members_from(species_texts, levels, grid=None, multiplicity=None, points=None, well_level=None,
+                 counterpoise: bool = False, branch: str = "lowest") -> list[Member]:
     """Members for every species x level (species as text or Species); ``well_level`` computes each
-    member's well and atoms at that level (:mod:`lcao.scan.well`)."""
+    member's well and atoms at that level (:mod:`lcao.scan.well`); ``counterpoise`` and ``branch`` as for
+    :func:`lcao.pipeline.curve`."""
     out = []
     for t in species_texts:
         sp = t if isinstance(t, Species) else parse_species(t)
         for lv in levels:
-            out.append(Member(sp, lv, grid, multiplicity, points, well_level))
+            out.append(Member(sp, lv, grid, multiplicity, points, well_level, counterpoise, branch))
     return out

@@ -88,14 +88,20 @@ class Sheet:
 
 
 def _computed_constants(species, level, multiplicity, grid, store, isotopes, workers=None, progress=None,
-                        well_level=None):
+                        well_level=None, counterpoise=False, branch="lowest"):
+    from .errors import FitError
+    from .fit.verdict import BOUND, METASTABLE
     from .masses import resolve_isotopes
-    from .pipeline import basis_size, curve_async, orbitals_async
+    from .pipeline import basis_size, curve_async
+    from .single_point import orbitals_async
     from .scan.session import open_session, run_sync
 
     async def both(session):
         res = await curve_async(session, species, level, grid, multiplicity, resolve_isotopes(species.atoms, isotopes),
-                                analyse_points=False, well_level=well_level)
+                                analyse_points=False, well_level=well_level, counterpoise=counterpoise, branch=branch)
+        if res.verdict is not None and res.verdict.kind not in (BOUND, METASTABLE):
+            raise FitError(f"no sheet for {res.species.label} at {res.level.text}: the curve's verdict is"
+                           f" {res.verdict.detail}")
         if res.fit is None:
             raise InputError(f"no fitted constants for {res.species.label} at {res.level.text}: {res.fit_error}")
         orb = await orbitals_async(session, species, level, at_minimum=True, multiplicity=res.multiplicity, grid=grid,
@@ -133,7 +139,12 @@ def _computed_constants(species, level, multiplicity, grid, store, isotopes, wor
         "grid": res.grid.as_dict(),
         "local_fit_window_angstrom": [float(x * BOHR_ANGSTROM) for x in f.local.r_window],
         "morse_window_angstrom": [float(x * BOHR_ANGSTROM) for x in f.morse.window] if f.morse else None,
+        "morse_kind": f.morse.kind if f.morse else None,
         "bound": f.bound,
+        "verdict": None if res.verdict is None else res.verdict.kind,
+        "verdict_detail": None if res.verdict is None else res.verdict.detail,
+        "branch": res.branch,
+        "spatial_symmetry_broken": res.scan.spatial is not None,
     }
     warns = tuple(res.scan.notes) + tuple(f.warnings)
     return vals, prov, levels, warns, res
@@ -183,6 +194,8 @@ def build_sheet(
     workers: int | None = None,
     progress=None,
     well_level=None,
+    counterpoise: bool = False,
+    branch: str = "lowest",
 ) -> Sheet:
     """Build the parameter sheet of one species (see the module docstring)."""
     from . import __version__
@@ -206,7 +219,7 @@ def build_sheet(
         if well_level is not None:
             _, well_level, _ = resolve_inputs(sp, well_level, grid, multiplicity)
         cvals, cprov, levels_cm1, cw, _res = _computed_constants(sp, lv, multiplicity, grid, store, isotopes, workers,
-                                                                 progress, well_level)
+                                                                 progress, well_level, counterpoise, branch)
         vals.update(cvals)
         field_sources.update({k: "computed" for k, v in cvals.items() if v is not None})
         prov.update(cprov)

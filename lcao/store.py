@@ -20,8 +20,6 @@ import datetime as _dt
 import json
 import os
 import sqlite3
-from dataclasses import dataclass, field
-
 import numpy as np
 
 from .errors import StoreError
@@ -330,7 +328,9 @@ def check_store_path(path) -> None:
     folder = os.path.dirname(os.path.abspath(path))
     if not os.path.isdir(folder):
         raise InputError(f"cannot create store {path}: folder {folder} does not exist")
-    if not os.access(folder, os.W_OK | os.X_OK):
+    from .export.io import can_create_in
+
+    if not os.access(folder, os.W_OK | os.X_OK) or not can_create_in(folder):
         raise InputError(f"cannot create store {path}: folder {folder} cannot be written")
 
 

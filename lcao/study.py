@@ -9,10 +9,11 @@ Top level::
     title = "..."            # text, optional
     out = "results"          # output folder, relative to the study file (default: <file stem>-results)
     store = "store.sqlite"   # results store, relative to the study file (default: <out>/lcao-store.sqlite)
-    [defaults]               # optional: levels, points, from, to, d_shells, well_level, all_electron
+    [defaults]               # optional: levels, points, from, to, d_shells, well_level, all_electron,
+                             # counterpoise, branch
     [[group]]                # one or more: name and either species or electrons + elements (+ charges),
                              # optionally levels, points, from, to, d_shells, well_level,
-                             # all_electron, multiplicity
+                             # all_electron, counterpoise, branch, multiplicity
 """
 
 from __future__ import annotations
@@ -25,7 +26,7 @@ from .errors import InputError
 
 TOP_KEYS = {"title": str, "out": str, "store": str, "defaults": dict, "group": list}
 SETTING_KEYS = {"levels": list, "points": int, "from": (int, float), "to": (int, float), "d_shells": str,
-                "well_level": str, "all_electron": bool}
+                "well_level": str, "all_electron": bool, "counterpoise": bool, "branch": str}
 GROUP_KEYS = {"name": str, "species": list, "electrons": int, "elements": list, "charges": (str, list), "multiplicity": dict, **SETTING_KEYS}
 
 
@@ -118,6 +119,9 @@ def load_study(path) -> Study:
             well = parse_level(s["well_level"], cart, fc) if s.get("well_level") else None
         except InputError as exc:
             raise StudyError(f"{where}: {exc}") from None
+        branch = s.get("branch", "lowest")
+        if branch not in ("lowest", "symmetric"):
+            raise StudyError(f"{where}: branch must be 'lowest' or 'symmetric', got {branch!r}")
         grid = None
         if ("from" in s) != ("to" in s):
             raise StudyError(f"{where}: give both from and to (angstrom), or neither")
@@ -144,7 +148,8 @@ def load_study(path) -> Study:
                 m = mults.get(sp.label)
                 if m is not None:
                     sp.check_multiplicity(m)
-                members += members_from([sp], levels, grid, m, None if grid else s.get("points"), well)
+                members += members_from([sp], levels, grid, m, None if grid else s.get("points"), well,
+                                        bool(s.get("counterpoise", False)), branch)
             unknown = set(mults) - {sp.label for sp in species}
             if unknown:
                 raise StudyError(f"{where}: multiplicity given for {', '.join(sorted(unknown))}, which is not in the group")

@@ -120,3 +120,29 @@ def kind_label(weights: dict, homonuclear: bool) -> tuple[str | None, int | None
         return None, None, None, summary
     par = best.split("_")[1] if "_" in best else None
     return best, lam, par, summary
+
+
+def off_symmetry_electrons(dm, s, basis: SymmetryBasis) -> float:
+    """How far a density breaks the molecule's spatial symmetry: the Frobenius norm of the blocks of the
+    total density (alpha plus beta) that couple different (|lambda|, parity) groups, in an orthonormal
+    symmetry-adapted basis (electrons; 0 for a symmetric density).
+
+    A solution whose total density is symmetric keeps its spatial symmetry even where each spin density is
+    not (the unrestricted dissociation of a closed-shell homonuclear molecule puts the alpha electrons on
+    one atom and the beta electrons on the other, each spin density broken, the total symmetric).
+    """
+    dm = np.asarray(dm, float)
+    total = dm.sum(axis=0) if dm.ndim == 3 else dm
+    parts = []
+    for u, inv in basis.groups.values():
+        w, v = np.linalg.eigh(inv)  # (U^T S U)^-1/2: the group's functions made orthonormal
+        parts.append(u @ (v * np.sqrt(w)) @ v.T)
+    sizes = [p.shape[1] for p in parts]
+    v = np.hstack(parts)
+    d = v.T @ s @ total @ s @ v
+    off = d.copy()
+    start = 0
+    for k in sizes:
+        off[start:start + k, start:start + k] = 0.0
+        start += k
+    return float(np.linalg.norm(off))

@@ -16,11 +16,19 @@ from .. import __version__
 COMMANDS = ("curve", "orbitals", "series", "run", "sheet")
 
 
+class OneLineParser(argparse.ArgumentParser):
+    """argparse with its usage errors on one line ('lcao curve: error: ...', exit status 2); ``--help`` shows
+    the usage."""
+
+    def error(self, message):
+        self.exit(2, f"{self.prog}: error: {message} (see {self.prog} --help)\n")
+
+
 def build_parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(
+    parser = OneLineParser(
         prog="lcao",
         description="Potential-energy curves, orbital analysis and spectroscopic constants of diatomic"
-        " molecules from Hartree-Fock calculations (PySCF).",
+        " molecules: Hartree-Fock, density functionals and correlated levels (PySCF).",
     )
     parser.add_argument("--version", action="version", version=f"lcao {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")

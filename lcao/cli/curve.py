@@ -57,12 +57,22 @@ def add_level_modifiers(g, well: bool = True) -> None:
         g.add_argument("--well-level", metavar="METHOD/BASIS",
                        help="a higher level for the points about the minimum and the separated atoms: r_e, the"
                             " vibrational and rotational constants and D_e come from it")
+        g.add_argument("--counterpoise", action="store_true",
+                       help="correct the curve for basis-set superposition (Boys & Bernardi 1970): each atom in the"
+                            " dimer's basis at every distance; the fit and verdict use the corrected curve (turned"
+                            " on by itself for rare-gas pairs and wells shallower than 0.05 eV)")
+        g.add_argument("--branch", choices=("lowest", "symmetric"), default="lowest",
+                       help="where the lowest solution breaks the molecule's spatial symmetry, follow it (lowest,"
+                            " the default) or the symmetry-adapted solution reference tables list (symmetric);"
+                            " both are fitted")
 
 
 def add_grid_options(p) -> None:
     g = p.add_argument_group("distance grid (angstrom)")
-    g.add_argument("--from", dest="r_from", metavar="R", help="first distance, angstrom")
-    g.add_argument("--to", dest="r_to", metavar="R", help="last distance, angstrom")
+    g.add_argument("--from", dest="r_from", metavar="R",
+                   help="first distance, angstrom (alone: the default grid starts here instead)")
+    g.add_argument("--to", dest="r_to", metavar="R",
+                   help="last distance, angstrom (alone: the default grid extended, or cut, to end here)")
     g.add_argument("--points", metavar="N", help="number of distances (default 30)")
 
 
@@ -108,21 +118,25 @@ def resolve_well_level(args):
     return resolve_level(args, args.well_level) if getattr(args, "well_level", None) else None
 
 
-def resolve_grid(args, species):
+def whole_points(text) -> int:
+    """``--points`` as a whole number, or a GridError naming it."""
     from ..errors import GridError
-    from ..scan.grid import default_grid, range_grid
+
+    try:
+        return int(text)
+    except (TypeError, ValueError):
+        raise GridError(f"--points must be a whole number, got {text!r}") from None
+
+
+def resolve_grid(args, species):
+    from ..scan.grid import DEFAULT_POINTS, default_grid, range_grid
 
     given = [args.r_from is not None, args.r_to is not None]
-    if any(given) and not all(given):
-        raise GridError("give both --from and --to (or neither, for the default grid)")
     if all(given):
         return range_grid(args.r_from, args.r_to, args.points if args.points is not None else 30)
-    if args.points is not None:
-        try:
-            n = int(args.points)
-        except ValueError:
-            raise GridError(f"--points must be a whole number, got {args.points!r}") from None
-        return default_grid(*species.z, points=n)
+    if any(given) or args.points is not None:  # the default grid, its end (or start) moved
+        n = whole_points(args.points) if args.points is not None else DEFAULT_POINTS
+        return default_grid(*species.z, points=n, r_from=args.r_from, r_to=args.r_to)
     return None
 
 
@@ -253,7 +267,8 @@ def run(args) -> int:
     try:
         with open_store(args) as store:
             result = curve(species, level, grid, multiplicity=args.multiplicity, store=store, isotopes=args.isotopes,
-                           progress=progress, workers=args.workers, well_level=resolve_well_level(args))
+                           progress=progress, workers=args.workers, well_level=resolve_well_level(args),
+                           counterpoise=args.counterpoise, branch=args.branch)
     finally:
         progress.close()
     paths = write_outputs(result, out)
@@ -271,7 +286,7 @@ def run(args) -> int:
         print(f"lcao: WARNING: {flagged} of {n} points are flagged, more than {MAX_FLAGGED_FRACTION:.0%};"
               " the curve and its fit are not to be trusted", file=sys.stderr)
         status = 1
-    if result.fit is None:
+    if result.fit is None and result.verdict is None:
         print(f"lcao: no fit: {result.fit_error}", file=sys.stderr)
         status = 1
     return status

@@ -30,9 +30,10 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
     where.add_argument("--at-minimum", action="store_true", help="at the fitted r_e of a curve (grid options apply)")
     p.add_argument(
         "--branch",
-        choices=("well", "lowest", "restricted", "unrestricted"),
+        choices=("well", "lowest", "restricted", "unrestricted", "symmetric"),
         default="well",
-        help="which solution to analyse (default: restricted for a closed-shell singlet under HF, else the lowest)",
+        help="which solution to analyse (default: restricted for a closed-shell singlet under HF, else the lowest;"
+             " symmetric: the symmetry-adapted one where the lowest breaks the molecule's spatial symmetry)",
     )
     add_level_options(p, well=False)
     add_grid_options(p)
@@ -102,7 +103,7 @@ def table_lines(res) -> list[str]:
 def run(args) -> int:
     from ..export import ORBITAL_WRITERS
     from ..export.curve_files import write_outputs
-    from ..pipeline import orbitals
+    from ..single_point import orbitals
     from .curve import default_out_dir
 
     r = None if args.at_minimum else _distance(args.r)

@@ -8,7 +8,14 @@ import os
 import re
 import sys
 
-from .curve import Progress, add_grid_options, add_level_modifiers, add_store_options, resolve_grid, resolve_level
+from .curve import (
+    Progress,
+    add_grid_options,
+    add_level_modifiers,
+    add_store_options,
+    resolve_grid,
+    resolve_level,
+)
 
 HELP = "curves, fits and orbitals of several species and/or levels side by side, with handbook values"
 DESCRIPTION = (
@@ -88,7 +95,7 @@ def table_lines(rows) -> list[str]:
 
     head = (
         f"{'species':8s} {'level':14s} {'mult':>4s} {'r_e/A':>8s} {'hb r_e':>7s} {'err':>7s} {'w_e/cm-1':>9s} {'hb w_e':>7s}"
-        f" {'D_e/eV':>7s} {'D_0/eV':>7s} {'hb D_0':>7s} {'BO(MO)':>6s} {'Mayer':>6s} {'unp':>3s}  magnetism / reason"
+        f" {'D_e/eV':>7s} {'D_0/eV':>7s} {'hb D_0':>7s} {'BO(MO)':>6s} {'Mayer':>6s} {'unp':>3s}  {'magnetism':12s} verdict / reason"
     )
     lines = [head]
 
@@ -107,9 +114,11 @@ def table_lines(rows) -> list[str]:
         lines.append(
             f"{r.species:8s} {r.level:14s} {v.get('multiplicity', ''):>4} {num(v.get('re_angstrom'), '8.4f')} {num(h.get('re_angstrom'), '7.4f')}"
             f" {num(e.get('re_angstrom'), '+7.4f')} {num(v.get('we_cm1'), '9.1f')} {num(h.get('we_cm1'), '7.1f')}"
-            f" {num(v.get('de_ev'), '7.3f') if v.get('bound') else 'unbound':>7s} {num(v.get('d0_ev'), '7.3f')} {num(h.get('d0_ev'), '7.3f')}"
+            f" {num(v.get('de_ev'), '7.3f'):>7s} {num(v.get('d0_ev'), '7.3f')} {num(h.get('d0_ev'), '7.3f')}"
             f" {num(v.get('bond_order_mo_count'), '6.1f')} {num(v.get('bond_order_mayer'), '6.3f')} {v.get('unpaired_electrons', '-'):>3}"
-            f"  {v.get('magnetism', '')}"
+            f"  {v.get('magnetism') or '-':12s} {v.get('verdict') or '-'}"
+            + (f" ({'symmetry-adapted' if r.branch == 'symmetric' else 'broken-symmetry'} branch: the lowest solution"
+               " breaks the spatial symmetry in the well)" if r.spatial_in_well else "")
         )
     return lines
 
@@ -147,13 +156,14 @@ def run(args) -> int:
         species = [parse_species(t) for t in args.species]
     else:
         raise InputError("name the species (e.g. N2 CO CN- NO+ BF) or give --electrons with --elements")
-    grid = resolve_grid(args, species[0]) if (args.r_from is not None or args.r_to is not None) else None
-    points = int(args.points) if (args.points is not None and grid is None) else None
-    if points is not None:
-        from ..scan.grid import default_grid
-
-        default_grid(*species[0].z, points=points)  # validates the count
-    members = members_from(species, levels, grid, None, points, well)
+    options = dict(counterpoise=args.counterpoise, branch=args.branch)
+    if args.r_from is not None and args.r_to is not None:  # one range for every member
+        members = members_from(species, levels, resolve_grid(args, species[0]), None, None, well, **options)
+    else:  # each member's own default grid (its end or start moved by --to or --from)
+        members = []
+        for sp in species:
+            grid = resolve_grid(args, sp)
+            members += members_from([sp], levels, grid, None, None, well, **options)
     from ..store import check_store_path
 
     out = check_out_dir(args.out)

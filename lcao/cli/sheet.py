@@ -17,6 +17,7 @@ from .curve import (
     resolve_grid,
     resolve_level,
     resolve_well_level,
+    whole_points,
 )
 
 HELP = "parameter sheet for kinetics models: constants in several units, thermochemistry, NASA polynomials"
@@ -62,7 +63,7 @@ def run(args) -> int:
         level = resolve_level(args, args.level or "HF/6-31G")
         well = resolve_well_level(args)
     grid = resolve_grid(args, species)
-    points = int(args.points) if (args.points is not None and grid is None) else None
+    points = whole_points(args.points) if (args.points is not None and grid is None) else None
     if args.constants == "handbook":
         from ..data import handbook_row
         from ..errors import InputError
@@ -89,7 +90,8 @@ def run(args) -> int:
                 sheet = build_sheet(species, level, source=args.constants, multiplicity=args.multiplicity, grid=grid,
                                     points=points, store=store, isotopes=args.isotopes, anharmonic=args.anharmonic,
                                     dhf298_kj_per_mol=args.dhf298, polynomial=args.polynomial, workers=args.workers,
-                                    progress=progress, well_level=well)
+                                    progress=progress, well_level=well, counterpoise=args.counterpoise,
+                                    branch=args.branch)
     finally:
         progress.close()
     paths = write_outputs(sheet, out, SHEET_WRITERS)

@@ -88,12 +88,55 @@ def curve_document(result) -> dict:
     if result.along:
         doc["along_curve"] = list(result.along)
         doc["along_curve_orbitals"] = method_for(result.level).orbitals_note(result.level) or "the level's own"
-    if result.fit is not None:
-        doc["fit"] = fit_document(result.fit, result.caution)
-    elif result.fit_error:
-        doc["fit"] = None
+    if result.fit is not None or result.verdict is not None:
+        doc["fit"] = fit_document(result.fit, result.caution, result.verdict)
+    if result.fit is None and result.fit_error:
         doc["fit_error"] = result.fit_error
+        doc.setdefault("fit", None)
+    if scan.spatial is not None:
+        doc["spatial_symmetry"] = spatial_block(scan.spatial, result.branch)
+        if doc.get("fit") is not None:
+            doc["fit"]["branch"] = result.branch
+            o = result.other_branch
+            if o is not None:
+                other = fit_document(o.fit, result.caution, o.verdict) if (o.fit is not None or o.verdict is not None) else None
+                if other is not None:
+                    other["branch"] = o.branch
+                doc["fit"]["other_branch"] = other if other is not None else {"branch": o.branch, "fit_error": o.fit_error}
+    if result.counterpoise is not None:
+        corrected = {round(p.r_bohr, 8): p for p in scan.points}
+        doc["counterpoise"] = {
+            "method": "Boys & Bernardi (Mol. Phys. 19, 553 (1970)): each atom in the dimer's basis at every distance",
+            "why": result.counterpoise_reason,
+            "points": [{"r_angstrom": float(bohr_to_angstrom(r)), "bsse_hartree": b,
+                        "corrected_energy_hartree": (corrected[r].energy_hartree + b) if r in corrected else None}
+                       for r, b in sorted(result.counterpoise.items())],
+        }
+    if result.neutral is not None:
+        n = result.neutral
+        doc["neutral_curve"] = {"species": n.species.label, "multiplicity": n.multiplicity,
+                                "limit_energy_hartree": n.limit_energy_hartree,
+                                "points": [p.as_dict() for p in n.points]}
     return doc
+
+
+def spatial_block(sp, follows: str) -> dict:
+    """The ``spatial_symmetry`` block of ``curve.json`` (:class:`lcao.scan.assemble.SpatialBreaking`)."""
+    from ..units import HARTREE_EV, bohr_to_angstrom
+
+    return {
+        "breaks": sp.what,
+        "broken_branch": sp.broken_branch,
+        "symmetric_branch": sp.symmetric_branch,
+        "point_group": sp.point_group,
+        "split_angstrom": None if sp.split is None else [float(bohr_to_angstrom(r)) for r in sp.split],
+        "largest_lowering_ev": sp.largest_gap_hartree * HARTREE_EV,
+        "off_symmetry_electrons": list(sp.off_symmetry),
+        "off_symmetry_method": "norm of the total density's blocks between symmetry kinds, orthonormal adapted basis",
+        "curve_follows": follows,
+        "reference_tables_list": "symmetric",
+        "symmetric_points": [p.as_dict() for p in sp.points if p is not None],
+    }
 
 
 POINT_COLUMNS = (

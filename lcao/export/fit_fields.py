@@ -14,6 +14,11 @@ def _ev(x):
     return None if x is None else x * HARTREE_EV
 
 
+def _finite(x, scale):
+    """``x * scale``, or None where ``x`` is None or not finite (JSON has no NaN)."""
+    return None if x is None or not math.isfinite(x) else float(x * scale)
+
+
 def morse_wavenumbers(fit) -> tuple[float, float]:
     """(omega_e, omega_e x_e) of the Morse model, hartree."""
     m = fit.morse
@@ -38,9 +43,39 @@ def spin_orbit_block(fit) -> dict | None:
     }
 
 
-def fit_document(fit, caution: str | None = None) -> dict:
+#: the fields of the fit block (all null where a curve has no well to give them)
+FIT_FIELDS = ("well_branch", "re_angstrom", "re_uncertainty_angstrom", "emin_hartree", "k_hartree_per_bohr2",
+              "k_uncertainty_hartree_per_bohr2", "we_cm1", "wexe_cm1", "be_cm1", "alpha_e_cm1", "local_window_angstrom",
+              "local_points", "local_rms_hartree", "reduced_mass", "bound", "de_ev", "de_source", "d0_ev",
+              "minimum_above_limit_ev", "zpe_cm1", "zpe_source", "sources", "spin_orbit", "morse", "morse_error",
+              "vibrational_levels", "warnings", "de_note")
+
+
+def verdict_fields(verdict) -> dict:
+    from ..units import bohr_to_angstrom as a
+
+    if verdict is None:
+        return {"verdict": None, "verdict_detail": None}
+    out = {"verdict": verdict.kind, "verdict_detail": verdict.detail}
+    if verdict.distances_bohr:
+        out["electron_loss_distances_angstrom"] = [float(a(r)) for r in verdict.distances_bohr]
+    return out
+
+
+def fit_document(fit, caution: str | None = None, verdict=None) -> dict:
     """The ``fit`` block of ``curve.json`` (field names documented in the README); ``caution`` is the
-    level's (:func:`lcao.pipeline.caution_for`)."""
+    level's (:func:`lcao.pipeline.caution_for`). A curve judged repulsive, unbound or superposition-limited
+    (``verdict``) keeps only where its minimum lies: no constants that would invite misuse."""
+    from ..fit.verdict import BOUND, METASTABLE
+
+    if fit is None or (verdict is not None and verdict.kind not in (BOUND, METASTABLE)):
+        out = {key: None for key in FIT_FIELDS}
+        out.update(bound=False, warnings=list(fit.warnings) if fit is not None else [], caution=caution)
+        if fit is not None:
+            out["minimum_r_angstrom"] = float(bohr_to_angstrom(fit.local.re))
+            out["minimum_above_limit_ev"] = _ev(fit.minimum_above_limit)
+        out.update(verdict_fields(verdict))
+        return out
     a = bohr_to_angstrom
     cm = HARTREE_CM1
     c = fit.constants
@@ -75,20 +110,24 @@ def fit_document(fit, caution: str | None = None) -> dict:
         "warnings": list(fit.warnings),
         "de_note": DE_NOTE,
         "caution": caution,
+        **verdict_fields(verdict),
     }
     if not fit.bound:
         out["binding"] = "not bound at this level"
     m = fit.morse
     if m is not None:
         we_m, wexe_m = morse_wavenumbers(fit)
+        derived = m.kind == "derived"
         out["morse"] = {
+            "kind": "derived from the local constants (not fitted)" if derived else "fitted",
             "de_ev": m.de * HARTREE_EV,
-            "de_uncertainty_ev": m.de_err * HARTREE_EV,
-            "de_note": "model value: the Morse asymptote, an extrapolation",
+            "de_uncertainty_ev": _finite(m.de_err, HARTREE_EV),
+            "de_note": ("D_e from the separated atoms at the same level" if derived
+                        else "model value: the Morse asymptote, an extrapolation"),
             "a_per_angstrom": m.a / a(1.0),
-            "a_uncertainty_per_angstrom": m.a_err / a(1.0),
+            "a_uncertainty_per_angstrom": _finite(m.a_err, 1.0 / a(1.0)),
             "re_angstrom": float(a(m.re)),
-            "re_uncertainty_angstrom": float(a(m.re_err)),
+            "re_uncertainty_angstrom": _finite(m.re_err, a(1.0)),
             "emin_hartree": m.e_min,
             "we_cm1": we_m * cm,
             "wexe_cm1": wexe_m * cm,
@@ -98,6 +137,11 @@ def fit_document(fit, caution: str | None = None) -> dict:
             "rms_residual_hartree": m.rms,
             "max_residual_hartree": m.max_abs,
         }
+        if derived:
+            out["morse"]["derivation"] = ("a = omega_e sqrt(mu / (2 D_e)) in atomic units, that is"
+                                          " a = omega_e sqrt(2 pi^2 c mu / (D_e h)) with omega_e and D_e in cm-1;"
+                                          " r_e and omega_e from the local fit, D_e from the separated atoms; the"
+                                          " residuals compare it with the curve's points near the well")
     lv = fit.levels
     if lv is not None:
         k = min(N_LEVELS_REPORTED, lv.n_bound)

@@ -58,11 +58,22 @@ def atomic_write_json(path, obj) -> None:
     atomic_write_text(path, json_text(obj))
 
 
-def check_out_dir(path) -> str:
-    """Check that the output folder can be written, without creating anything.
+def can_create_in(folder: str) -> bool:
+    """Whether a folder can really be created in ``folder`` (permission bits say nothing for root, nor on
+    read-only or virtual file systems such as /proc): one is made and removed at once, leaving nothing."""
+    try:
+        probe = tempfile.mkdtemp(prefix=".lcao-probe-", dir=folder)
+    except OSError:
+        return False
+    os.rmdir(probe)
+    return True
 
-    The folder may not exist yet; then its nearest existing parent must be a
-    writable folder. Raises InputError naming the path.
+
+def check_out_dir(path) -> str:
+    """Check that the output folder can be written, leaving nothing behind.
+
+    The folder may not exist yet; then its nearest existing parent must be a folder in which it can be
+    created. Raises InputError naming the path.
     """
     from ..errors import InputError
 
@@ -70,7 +81,7 @@ def check_out_dir(path) -> str:
     if os.path.exists(path):
         if not os.path.isdir(path):
             raise InputError(f"output path {path} exists and is not a folder")
-        if not os.access(path, os.W_OK | os.X_OK):
+        if not os.access(path, os.W_OK | os.X_OK) or not can_create_in(path):
             raise InputError(f"output folder {path} cannot be written")
         return path
     parent = os.path.dirname(os.path.abspath(path))
@@ -78,8 +89,8 @@ def check_out_dir(path) -> str:
         parent = os.path.dirname(parent)
     if not os.path.isdir(parent):
         raise InputError(f"cannot create output folder {path}: {parent} is not a folder")
-    if not os.access(parent, os.W_OK | os.X_OK):
-        raise InputError(f"cannot create output folder {path}: {parent} cannot be written")
+    if not os.access(parent, os.W_OK | os.X_OK) or not can_create_in(parent):
+        raise InputError(f"cannot create output folder {path}: nothing can be created in {parent}")
     return path
 
 

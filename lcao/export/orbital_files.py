@@ -18,7 +18,7 @@ CHARACTER_NOTE = (
 
 
 def orbitals_document(res) -> dict:
-    """The ``orbitals.json`` document of a :class:`lcao.pipeline.OrbitalsResult`."""
+    """The ``orbitals.json`` document of a :class:`lcao.single_point.OrbitalsResult`."""
     import pyscf
 
     from .. import __version__

@@ -24,13 +24,18 @@ def member_values(row) -> dict:
         return out
     out.update(multiplicity=row.multiplicity, reference=row.reference, trusted_points=row.trusted_points,
                points=row.points, limit_energy_hartree=row.limit_energy_hartree)
+    v = row.verdict
+    out.update(verdict=None if v is None else v.kind, verdict_detail=None if v is None else v.detail,
+               branch=row.branch, spatial_symmetry_broken=row.spatial_broken,
+               spatial_symmetry_broken_in_well=row.spatial_in_well)
     if row.fit is None:
         return out
-    f = fit_document(row.fit)
+    f = fit_document(row.fit, verdict=v)
     for key in ("re_angstrom", "re_uncertainty_angstrom", "we_cm1", "wexe_cm1", "be_cm1", "alpha_e_cm1", "de_ev",
                 "d0_ev", "zpe_cm1", "bound"):
         out[key] = f[key]
     out["morse_de_ev"] = f["morse"]["de_ev"] if f["morse"] else None
+    out["morse_kind"] = f["morse"]["kind"] if f["morse"] else None
     out["well_branch"] = f["well_branch"]
     o = row.orbitals
     if o is not None:

@@ -12,6 +12,8 @@ def sheet_csv(sheet) -> str:
     rec = dict(sheet.record)
     p = sheet.provenance
     rec["source"] = p.get("source")
+    rec["verdict"] = p.get("verdict")
+    rec["morse_kind"] = p.get("morse_kind")
     rec["level_d_shells"] = (p.get("level") or {}).get("d_shells", "")
     rec["lcao_version"] = p["versions"]["lcao"]
     rec["pyscf_version"] = p["versions"]["pyscf"]

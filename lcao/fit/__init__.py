@@ -34,9 +34,9 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..errors import FitError
-from ..units import HARTREE_EV, bohr_to_angstrom
+from ..units import HARTREE_CM1, HARTREE_EV, bohr_to_angstrom
 from .local import LocalFit, dunham_constants, local_fit
-from .morse import MorseFit, fit_morse
+from .morse import MorseFit, derived_morse, fit_morse
 from .vibration import VibrationalLevels, solve_levels
 
 log = logging.getLogger(__name__)
@@ -206,7 +206,10 @@ def fit_curve(inp: FitInput) -> CurveFit:
             notes.append(f"Morse fit: {w.message}")
     except FitError as exc:
         morse_err = str(exc)
-    if morse_fit is not None and morse_fit.rms > MORSE_POOR_FRACTION * morse_fit.de:
+        wr = [inp.curve_r[i] for i in win]
+        we_ = [inp.curve_e[i] for i in win]
+        morse_fit = derived_morse(lf.e_min, gap, lf.k, lf.re, lf.k_err, lf.re_err, wr, we_, morse_err)
+    if morse_fit is not None and morse_fit.kind == "fitted" and morse_fit.rms > MORSE_POOR_FRACTION * morse_fit.de:
         notes.append(
             f"the Morse form describes this curve poorly (residual RMS {morse_fit.rms:.2e} Eh,"
             f" {100 * morse_fit.rms / morse_fit.de:.0f} % of its D_e); use the local constants and solved levels"
@@ -264,4 +267,11 @@ def _levels(r, e, mu, limit, e_min):
     e = np.asarray(e, float)
     spline = CubicSpline(r, e)
     e_cut = min(limit, float(e[-1]))
-    return solve_levels(spline, mu, float(r[0]), float(r[-1]), e_cut, float(min(e.min(), e_min)))
+    # the spline may dip below every point between two of them (a rough curve): the levels count from its floor
+    v_min = float(min(e.min(), e_min, spline(np.linspace(r[0], r[-1], 4000)).min()))
+    levels = solve_levels(spline, mu, float(r[0]), float(r[-1]), e_cut, v_min)
+    if levels.n_bound == 0:
+        raise ValueError(f"no level lies below {'the separated atoms' if e_cut == limit else 'the last trusted point'}:"
+                         f" the curve rises only {(e_cut - v_min) * HARTREE_CM1:.0f} cm-1 above its minimum there,"
+                         " less than the zero-point energy")
+    return levels

@@ -46,10 +46,13 @@ class MorseFit:
 
     Attributes:
         e_min, de, a, re: parameters (hartree, hartree, 1/bohr, bohr).
-        e_min_err, de_err, a_err, re_err: standard errors from the covariance.
-        rms, max_abs: residual RMS and largest absolute residual, hartree.
+        e_min_err, de_err, a_err, re_err: standard errors from the covariance (None where not estimated:
+            a derived model's D_e and E_min come from the atoms and the local fit as they are).
+        rms, max_abs: residual RMS and largest absolute residual over the window's points, hartree.
         n_points: points in the window; window: (first, last) distance, bohr.
         window_reason: why the window ends where it does.
+        kind: 'fitted' (least squares on the window) or 'derived' (from the local constants and D_e,
+            :func:`derived_morse`, where the window is too short to fit).
     """
 
     e_min: float
@@ -65,6 +68,7 @@ class MorseFit:
     n_points: int
     window: tuple[float, float]
     window_reason: str
+    kind: str = "fitted"
 
 
 def fit_morse(r, e, window_reason: str = "given") -> MorseFit:
@@ -134,3 +138,21 @@ def fit_morse(r, e, window_reason: str = "given") -> MorseFit:
         window=(float(r[0]), float(r[-1])),
         window_reason=window_reason,
     )
+
+
+def derived_morse(e_min: float, de: float, k: float, re: float, k_err: float, re_err: float, r, e,
+                  why: str) -> MorseFit:
+    """The Morse potential from the local constants where no window is long enough to fit one: D_e from the
+    separated atoms, r_e and the force constant k from the local fit, and the range parameter from
+    k = 2 D_e a^2, that is a = omega_e sqrt(mu / (2 D_e)) in atomic units (omega_e = sqrt(k / mu); in
+    wavenumbers a = omega_e sqrt(2 pi^2 c mu / (D_e h))). Its uncertainty follows from k's alone:
+    a_err = a k_err / (2 k). ``r``, ``e`` are the curve points near the well it is compared with
+    (residuals only)."""
+    a = float(np.sqrt(k / (2.0 * de)))
+    r = np.asarray(r, float)
+    e = np.asarray(e, float)
+    res = morse(r, e_min, de, a, re) - e if len(r) else np.zeros(1)
+    return MorseFit(float(e_min), float(de), a, float(re), None, None, float(a * k_err / (2.0 * k)), float(re_err),
+                    float(np.sqrt(np.mean(res**2))), float(np.max(np.abs(res))), int(len(r)),
+                    (float(r.min()), float(r.max())) if len(r) else (float(re), float(re)),
+                    f"derived from the local constants: {why}", "derived")

@@ -21,6 +21,18 @@ import numpy as np
 
 #: the two kinds of solution a curve can follow
 BRANCHES = ("restricted", "unrestricted")
+#: a branch's symmetry-adapted copy is named ``<branch>`` + this (e.g. 'unrestricted-symmetric')
+SYMMETRIC_SUFFIX = "-symmetric"
+
+
+def base_branch(branch: str) -> str:
+    """'unrestricted' of 'unrestricted-symmetric' (a branch name without its symmetry-adapted suffix)."""
+    return branch[: -len(SYMMETRIC_SUFFIX)] if branch.endswith(SYMMETRIC_SUFFIX) else branch
+
+
+def is_symmetric(branch: str) -> bool:
+    """Whether ``branch`` is a symmetry-adapted copy (its solutions keep the molecule's spatial symmetry)."""
+    return branch.endswith(SYMMETRIC_SUFFIX)
 
 #: name -> array; what a method needs to start the next point (see the module docstring)
 Warm = dict
@@ -228,6 +240,11 @@ class Method(ABC):
         functional as evaluated, the grid, the correlated electrons)."""
         return {}
 
+    def ghost_atom(self, atom: AtomResult, level, partner: str, r_bohr: float, first: bool) -> AtomResult:
+        """The atom ``atom`` in the dimer's basis: its partner ``partner`` a ghost at ``r_bohr`` (the atom at
+        the origin when ``first``, else at r): the counterpoise correction's atom."""
+        raise NotImplementedError(f"{type(self).__name__} gives no counterpoise correction")
+
     def reference_level(self, level):
         """For a level computed on top of another level's solutions (a correlated method on Hartree-Fock),
         that level: the protocol then follows the reference's solutions at it and adds this method's
@@ -237,6 +254,17 @@ class Method(ABC):
     def on_reference(self, target: Target, reference: PointResult, branch: str) -> PointResult:
         """This method's point on a converged point of :meth:`reference_level` (same distance and branch)."""
         raise NotImplementedError(f"{type(self).__name__} is not computed on a reference")
+
+    def symmetric_branch(self, level, branch: str) -> str | None:
+        """The name of the symmetry-adapted copy of ``branch`` (solutions kept in the molecule's point group,
+        computed where the lowest solution breaks the spatial symmetry), or None where the method has none.
+        :meth:`point` then accepts that name as a branch."""
+        return None
+
+    def spatial_breaking(self, target: Target, point: PointResult) -> float | None:
+        """How far a point's solution breaks the molecule's spatial symmetry (off-symmetry electrons of its
+        total density, :func:`lcao.analysis.symmetry.off_symmetry_electrons`), or None where not measured."""
+        return None
 
     def orbitals_note(self, level) -> str | None:
         """What the analysed orbitals are when they are not this method's own (e.g. the reference's)."""

@@ -191,6 +191,32 @@ class Correlated(Method):
     def fragment_start(self, target, a, b, flip):
         return self._hf().fragment_start(self._ref_target(target), a, b, flip)
 
+    def ghost_atom(self, atom, level, partner, r_bohr, first):
+        """The Hartree-Fock atom in the dimer basis, then its correlation (the atom's own cores frozen)."""
+        from dataclasses import replace
+
+        from ..species import atomic_number
+        from .molecule import build_with_ghost
+
+        if level.cbs is not None:
+            from ..scan.cbs import combine_atom
+
+            small, large, x, y = level.cbs
+            return combine_atom(self.ghost_atom(atom, level.with_basis(small), partner, r_bohr, first),
+                                self.ghost_atom(atom, level.with_basis(large), partner, r_bohr, first), x, y)
+        rl = self.reference_level(level)
+        own = self._hf().atom(atom.symbol, atom.charge, atom.spin, rl)
+        ref = self._hf().ghost_atom(own, rl, partner, r_bohr, first)
+        if atomic_number(atom.symbol) == atom.charge or not ref.converged:
+            return ref
+        symbols = (atom.symbol, partner) if first else (partner, atom.symbol)
+        mol = build_with_ghost(symbols, r_bohr, rl, atom.charge, atom.spin, 0 if first else 1)
+        mf = _reference_scf(mol, "UHF", PointResult(r_bohr, ref.energy_hartree, True, 0, warm=ref.warm))
+        frozen = frozen_orbitals((atom.symbol,), atom.charge) if level.frozen_core is not False else 0
+        ecorr, ok, _ = _correlate(mf, self.kind(level), frozen)
+        return replace(ref, energy_hartree=float(mf.e_tot + ecorr), converged=ok and bool(mf.converged),
+                       components={"reference": float(mf.e_tot), "correlation": float(ecorr)})
+
     def instability_start(self, target, point, branch):
         return self._hf().instability_start(self._ref_target(target), point, branch)
 

@@ -61,7 +61,17 @@ class Solution:
     scf: object = field(default=None, repr=False, compare=False)
 
 
-def _classes(kohn_sham: bool):
+def _classes(kohn_sham: bool, symmetric: bool = False):
+    """PySCF's SCF classes; with ``symmetric`` its symmetry-adapted ones (orbitals kept in the irreps of the
+    molecule's point group, :func:`lcao.methods.molecule.point_group`)."""
+    if symmetric:
+        if kohn_sham:
+            from pyscf.dft import rks_symm, uks_symm
+
+            return {"RHF": rks_symm.SymAdaptedRKS, "UHF": uks_symm.SymAdaptedUKS, "ROHF": rks_symm.SymAdaptedROKS}
+        from pyscf.scf import hf_symm, uhf_symm
+
+        return {"RHF": hf_symm.SymAdaptedRHF, "UHF": uhf_symm.SymAdaptedUHF, "ROHF": hf_symm.SymAdaptedROHF}
     if kohn_sham:
         from pyscf.dft import rks, roks, uks
 
@@ -77,7 +87,8 @@ GRID_LEVEL = 3
 
 def make_scf(mol, reference: str, two_electron: bool = True, xc: str | None = None):
     """A PySCF SCF object for ``reference`` ('RHF', 'UHF', 'ROHF'; with a functional ``xc`` the
-    Kohn-Sham ones, RKS, UKS, ROKS), no checkpoint file, quiet.
+    Kohn-Sham ones, RKS, UKS, ROKS), no checkpoint file, quiet; PySCF's symmetry-adapted classes for a
+    molecule built with a point group.
 
     The one-electron integrals, the orthogonaliser of the overlap, and the two-electron integrals where
     they fit in memory come from the process's integral cache (PySCF's custom-Hamiltonian hooks
@@ -88,7 +99,7 @@ def make_scf(mol, reference: str, two_electron: bool = True, xc: str | None = No
     from .jk import product_class
 
     ints = caches().integrals
-    mf = product_class(_classes(xc is not None)[reference])(mol)
+    mf = product_class(_classes(xc is not None, bool(mol.symmetry))[reference])(mol)
     if xc is not None:
         mf.xc = xc
         mf.grids = grids_for(mol, GRID_LEVEL)
@@ -102,7 +113,8 @@ def make_scf(mol, reference: str, two_electron: bool = True, xc: str | None = No
     h, s, x = ints.one_electron(mol)
     mf.get_hcore = lambda *a, **k: h
     mf.get_ovlp = lambda *a, **k: s
-    mf.check_linear_dependency = lambda *a, **k: x
+    if not mol.symmetry:  # a symmetry-adapted class builds its own, per irrep
+        mf.check_linear_dependency = lambda *a, **k: x
     return mf
 
 
@@ -174,7 +186,8 @@ def _stability_step(mf, reference: str):
 
     Hartree-Fock RHF and UHF solutions with the integrals in memory and a small basis use the dense
     Hessian of :mod:`lcao.methods.stability`, the rest (Kohn-Sham solutions among them) its Davidson
-    route on PySCF's Hessian-vector products.
+    route on PySCF's Hessian-vector products. A symmetry-adapted solution is checked only along rotations
+    that keep its symmetry (the Davidson route with PySCF's symmetry mask).
     """
     if rotations(mf) == 0:
         return None
@@ -185,7 +198,9 @@ def _stability_step(mf, reference: str):
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            if reference in ("RHF", "UHF") and st.dense_possible(mf):
+            if mf.mol.symmetry:
+                e, v = st.davidson_internal(mf, reference, keep_symmetry=True)
+            elif reference in ("RHF", "UHF") and st.dense_possible(mf):
                 e, v = st.internal(mf, reference)
             else:
                 e, v = st.davidson_internal(mf, reference)

@@ -14,7 +14,8 @@ from __future__ import annotations
 import numpy as np
 
 from ..errors import LevelError
-from .base import AtomResult, Capabilities, Method, PointResult, StatePlan, Target
+from .base import SYMMETRIC_SUFFIX, AtomResult, Capabilities, Method, PointResult, StatePlan, Target, base_branch, \
+    is_symmetric
 
 
 class SelfConsistentField(Method):
@@ -61,20 +62,33 @@ class SelfConsistentField(Method):
         """'RHF', 'UHF' or 'ROHF' (the Kohn-Sham classes of the same shape where a functional is set)."""
         ref = self.choice(target.level)
         if ref == "auto":
-            return "RHF" if (branch == "restricted" and target.multiplicity == 1) else "UHF"
+            return "RHF" if (base_branch(branch) == "restricted" and target.multiplicity == 1) else "UHF"
         return ref
 
-    def _molecule(self, target: Target, r_bohr: float):
+    def _molecule(self, target: Target, r_bohr: float, symmetric: bool = False):
         from .molecule import build_molecule
 
-        return build_molecule(target.atoms, r_bohr, target.level, target.charge, target.spin)
+        return build_molecule(target.atoms, r_bohr, target.level, target.charge, target.spin, symmetric)
+
+    def symmetric_branch(self, level, branch: str) -> str | None:
+        return None if is_symmetric(branch) else branch + SYMMETRIC_SUFFIX
+
+    def spatial_breaking(self, target, point) -> float | None:
+        from ..analysis.symmetry import off_symmetry_electrons, symmetry_basis
+        from .molecule import overlap
+
+        dm = point.warm.get("dm") if point.warm else None
+        if dm is None or not point.converged:
+            return None
+        mol = self._molecule(target, point.r_bohr)
+        return off_symmetry_electrons(np.asarray(dm), overlap(mol), symmetry_basis(mol))
 
     def point(self, target, r_bohr, branch, start, check_instability=False) -> PointResult:
         from .scf import orbitals_of, solve, spin_square, unstable_towards_uhf
 
         ref = self._reference(target, branch)
         xc = self.xc(target.level)
-        mol = self._molecule(target, r_bohr)
+        mol = self._molecule(target, r_bohr, is_symmetric(branch))
         dm0 = None if not start else start.get("dm")
         if dm0 is not None:
             dm0 = np.asarray(dm0)
@@ -133,6 +147,27 @@ class SelfConsistentField(Method):
         if best is None:
             best = solve(mol, "UHF", None, xc=xc)
         return AtomResult(symbol, charge, spin, best.energy, converged, {"dm": best.dm}, {"reference": best.energy})
+
+    def ghost_atom(self, atom, level, partner, r_bohr, first):
+        """The atom in the dimer basis, started from its own density (zeros on the ghost's functions)."""
+        from scipy.linalg import block_diag
+
+        from dataclasses import replace
+
+        from ..species import atomic_number
+        from .molecule import build_with_ghost
+        from .scf import solve
+
+        if atomic_number(atom.symbol) == atom.charge:  # a bare nucleus
+            return atom
+        symbols = (atom.symbol, partner) if first else (partner, atom.symbol)
+        mol = build_with_ghost(symbols, r_bohr, level, atom.charge, atom.spin, 0 if first else 1)
+        own = np.asarray(atom.warm["dm"])
+        pad = np.zeros((mol.nao - own.shape[-1],) * 2)
+        start = np.array([block_diag(own[k], pad) if first else block_diag(pad, own[k]) for k in (0, 1)])
+        sol = solve(mol, "UHF", start, xc=self.xc(level))
+        return replace(atom, energy_hartree=float(sol.energy), converged=sol.converged, warm={"dm": sol.dm},
+                       components={"reference": float(sol.energy)})
 
     def fragment_start(self, target, a, b, flip):
         """Block-diagonal (alpha, beta) density of the two atoms."""

@@ -226,18 +226,27 @@ def _davidson(hx, hdiag, x0):
     return (float(e), np.asarray(v)) if e < UNSTABLE_BELOW else (None, None)
 
 
-def davidson_internal(mf, reference: str):
+def davidson_internal(mf, reference: str, keep_symmetry: bool = False):
     """Lowest internal mode by Davidson iteration on PySCF's orbital-Hessian products (its public
     ``pyscf.soscf.newton_ah.gen_g_hop_*``, scaled as its stability analysis scales them), or
-    (None, None) when stable."""
+    (None, None) when stable. With ``keep_symmetry`` (a solution of a molecule built with a point group)
+    only the rotations between orbitals of the same irrep are searched."""
     from pyscf.soscf import newton_ah
 
     gen = {"RHF": newton_ah.gen_g_hop_rhf, "UHF": newton_ah.gen_g_hop_uhf, "ROHF": newton_ah.gen_g_hop_rohf}[reference]
-    g, hop, hdiag = gen(mf, mf.mo_coeff, mf.mo_occ, with_symmetry=False)
+    g, hop, hdiag = gen(mf, mf.mo_coeff, mf.mo_occ, with_symmetry=keep_symmetry)
     hdiag = hdiag * 2
     x0 = np.zeros_like(g)
     x0[g != 0] = 1.0 / hdiag[g != 0]
-    x0[np.argmin(hdiag)] = 1
+    if keep_symmetry:  # PySCF zeroes the diagonal, gradient and products of the forbidden rotations
+        allowed = hdiag != 0
+        if not allowed.any():
+            return None, None
+        x0[~allowed] = 0.0
+        x0[np.flatnonzero(allowed)[np.argmin(hdiag[allowed])]] = 1
+        hdiag = np.where(allowed, hdiag, 1e8)
+    else:
+        x0[np.argmin(hdiag)] = 1
     return _davidson(lambda x: hop(x).real * 2, hdiag, x0)
 
 

@@ -53,7 +53,7 @@ def _draw_cluster(ax, x0, width, e, items, style, electrons):
 
 
 def plot_levels(res, ax=None, window_hartree: float = 1.0):
-    """Draw a :class:`lcao.pipeline.OrbitalsResult`; returns the Axes.
+    """Draw a :class:`lcao.single_point.OrbitalsResult`; returns the Axes.
 
     Args:
         window_hartree: how far above the highest occupied level to draw virtual levels.

@@ -28,7 +28,8 @@ def plot_re(rows, ax=None):
     from ..export.series_files import member_values
 
     vals = [member_values(r) for r in rows]
-    y = [v.get("re_angstrom") for v in vals]
+    # a member with no well (repulsive, unbound, superposition-limited) has no r_e: a gap in the line
+    y = [np.nan if v.get("re_angstrom") is None else v["re_angstrom"] for v in vals]
     err = [v.get("re_uncertainty_angstrom") or 0.0 for v in vals]
     hb = [r.handbook.get("re_angstrom") if r.handbook else None for r in rows]
     ax.errorbar(x, y, yerr=err, fmt="s-", color="black", ms=5, lw=1, label="computed")

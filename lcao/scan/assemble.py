@@ -43,6 +43,7 @@ class ScanResult:
         references: branch -> the name outputs show for it.
         reference_scan: for a level computed on a reference (a correlated method on Hartree-Fock), the
             reference's own ScanResult, else None.
+        spatial: see :class:`SpatialBreaking`.
     """
 
     points: tuple[CurvePoint, ...]
@@ -57,6 +58,93 @@ class ScanResult:
     notes: tuple[str, ...] = field(default=())
     references: dict = field(default_factory=dict)
     reference_scan: object = None
+    #: where the lowest solution breaks the molecule's spatial symmetry, its symmetry-adapted branch
+    #: (:class:`SpatialBreaking`), else None
+    spatial: object = None
+
+
+#: a solution whose total density has more than this many electrons off the molecule's symmetry blocks
+#: breaks its spatial symmetry (:func:`lcao.analysis.symmetry.off_symmetry_electrons`; a symmetric one
+#: measures below 1e-12)
+SPATIAL_BREAK_ELECTRONS = 0.01
+#: the broken-symmetry solution must lie this far below the symmetry-adapted one to count as split
+SPATIAL_SPLIT_HARTREE = 1e-6
+#: a breaking that lowers the energy by less than this (2.7 meV) nowhere is not kept as a branch: separated
+#: atoms in p^n states, for one, mix sigma and pi at long range for nothing
+SPATIAL_MATTERS_HARTREE = 1e-4
+
+
+@dataclass(frozen=True)
+class SpatialBreaking:
+    """A curve whose lowest solution breaks the molecule's spatial symmetry, and its symmetry-adapted branch.
+
+    Attributes:
+        broken_branch: the branch whose solutions break it (e.g. 'unrestricted').
+        symmetric_branch: its symmetry-adapted copy (e.g. 'unrestricted-symmetric').
+        point_group: the abelian group the symmetry-adapted solutions keep ('D2h', 'C2v').
+        what: which symmetry breaks, in words.
+        off_symmetry: per curve point, the off-symmetry electrons of its solution (None where not measured).
+        split: (first, last) distance in bohr where the broken solution lies below the symmetry-adapted one
+            by more than :data:`SPATIAL_SPLIT_HARTREE`, or None where it never does.
+        largest_gap_hartree: the largest such lowering.
+        points: the symmetry-adapted curve: per distance the symmetric branch's point where trusted, else the
+            curve's.
+        refined: the refinement points about the symmetry-adapted curve's minimum.
+    """
+
+    broken_branch: str
+    symmetric_branch: str
+    point_group: str
+    what: str
+    off_symmetry: tuple
+    split: tuple | None
+    largest_gap_hartree: float
+    points: tuple
+    refined: tuple = ()
+
+    def view(self, result: "ScanResult") -> "ScanResult":
+        """``result`` as if its broken branch had kept the symmetry: the symmetric curve and, in the broken
+        branch's place, the symmetric branch where it is trusted."""
+        sym = result.branches[self.symmetric_branch]
+        old = result.branches[self.broken_branch]
+        merged = tuple(s if (s is not None and s.trusted) else b for s, b in zip(sym, old))
+        return replace(result, points=tuple(self.points), branches={**result.branches, self.broken_branch: merged})
+
+
+def spatial_breaking(final, symmetric, off, broken_branch: str, symmetric_branch: str, group: str, what: str,
+                     refined=()) -> SpatialBreaking:
+    """The :class:`SpatialBreaking` of a curve ``final`` from its symmetric branch's points (same grid)."""
+    split, gap = [], 0.0
+    for p, q, x in zip(final, symmetric, off):
+        if p is None or q is None or not (p.trusted and q.trusted) or x is None or x <= SPATIAL_BREAK_ELECTRONS:
+            continue
+        d = q.energy_hartree - p.energy_hartree
+        if d > SPATIAL_SPLIT_HARTREE:
+            split.append(p.r_bohr)
+            gap = max(gap, d)
+    points = tuple(q if (q is not None and q.trusted) else p for p, q in zip(final, symmetric))
+    return SpatialBreaking(broken_branch, symmetric_branch, group, what, tuple(off),
+                           (min(split), max(split)) if split else None, gap, points, tuple(refined))
+
+
+def spatial_note(sp: SpatialBreaking, references: dict) -> str:
+    """The note of a curve whose lowest solution breaks its spatial symmetry."""
+    from ..units import HARTREE_EV
+
+    broken = references.get(sp.broken_branch, sp.broken_branch)
+    sym = references.get(sp.symmetric_branch, sp.symmetric_branch)
+    top = max((x for x in sp.off_symmetry if x is not None), default=0.0)
+    if sp.split is None:
+        where = (f"its solutions carry up to {top:.2f} electrons off the symmetry, but lie no lower than the"
+                 " symmetry-adapted ones")
+    else:
+        lo, hi = bohr_to_angstrom(sp.split[0]), bohr_to_angstrom(sp.split[1])
+        where = (f"the branches split from {lo:.3f} to {hi:.3f} A, the broken one up to"
+                 f" {sp.largest_gap_hartree * HARTREE_EV:.3f} eV lower")
+    return (f"the lowest {broken} solution breaks the molecule's {sp.what}: {where}. Both branches are kept:"
+            f" '{sp.broken_branch}' (broken symmetry, the lowest solution) and '{sp.symmetric_branch}' ({sym},"
+            " symmetry-adapted). Reference tables list the symmetry-adapted solution; both are fitted, and"
+            " --branch symmetric makes it the curve's")
 
 
 def curve_points(found: dict, n: int, branch: str, sweep: str) -> list:
@@ -170,7 +258,8 @@ def switch_once(branches: dict, n: int) -> tuple[list, str | None]:
     return flag_outliers(final), note
 
 
-def curve_notes(final, limit_hartree: float, fragment_limit, multiplicity: int, spin_square: bool) -> list[str]:
+def curve_notes(final, limit_hartree: float, fragment_limit, multiplicity: int, spin_square: bool,
+                open_atoms: bool = True) -> list[str]:
     """The notes of a finished curve (see the module docstring)."""
     notes = []
     n = len(final)
@@ -181,7 +270,8 @@ def curve_notes(final, limit_hartree: float, fragment_limit, multiplicity: int, 
         if gap > 1e-3:
             notes.append(
                 f"at {last.r_angstrom:.2f} A the curve lies {gap:.4f} Eh above the separated atoms"
-                + (" (a restricted curve dissociates to the wrong limit)" if last.branch == "restricted" else "")
+                + (" (a restricted curve dissociates to the wrong limit)" if last.branch == "restricted" and open_atoms
+                   else "")
             )
     if fragment_limit is not None and fragment_limit > limit_hartree + 1e-6:
         notes.append(

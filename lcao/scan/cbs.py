@@ -68,8 +68,8 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
     states = needed_states(species, target.spin)
     tallies = (Tally(), Tally())
     (sx, _, _), (sy, _, _), atoms_x, atoms_y = await asyncio.gather(
-        protocol.scan(session, method, species, tx, r_all, tallies[0], refine_points=False, analyse=False),
-        protocol.scan(session, method, species, ty, r_all, tallies[1], refine_points=False, analyse=False),
+        protocol.scan(session, method, species, tx, r_all, tallies[0], refine_points=False, analyse=False, spatial=False),
+        protocol.scan(session, method, species, ty, r_all, tallies[1], refine_points=False, analyse=False, spatial=False),
         session.atoms(method, tx.level, states), session.atoms(method, ty.level, states))
     n = len(r_all)
     branches, sweeps, found = {}, {}, {}
@@ -97,7 +97,7 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
     else:
         final = assemble.lowest_over_branches(branches, n)
     notes += assemble.curve_notes(final, limit.energy_hartree, frag_limit, target.multiplicity,
-                                  method.capabilities.spin_square)
+                                  method.capabilities.spin_square, any(a.spin > 0 for a in limit.atoms))
     for t, s in ((tx, sx), (ty, sy)):
         notes += [f"{t.level.text}: {note}" for note in s.result.notes if "above the separated atoms" not in note]
     state = method.state_plan(target.level, target.multiplicity)

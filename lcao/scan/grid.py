@@ -110,12 +110,16 @@ def expected_bond_length_bohr(z_a: int, z_b: int) -> float:
     return float(radii.COVALENT[z_a] + radii.COVALENT[z_b])
 
 
-def default_grid(z_a: int, z_b: int, points: int = DEFAULT_POINTS) -> Grid:
+def default_grid(z_a: int, z_b: int, points: int = DEFAULT_POINTS, r_from=None, r_to=None) -> Grid:
     """Grid from covalent radii: 60 % of the points from 0.62 to 1.5 times the
     expected bond length (the sum of single-bond covalent radii, which
     overestimates multiple bonds: N2 1.42 A against 1.10 A), the rest spaced
     geometrically out to 3 times it (at least 2.5 times, as a dissociation
-    curve needs)."""
+    curve needs).
+
+    ``r_to`` (angstrom) moves its far end: points beyond it are dropped, and it is reached with the
+    tail's geometric spacing continued (the default grid extended outward); ``r_from`` likewise moves
+    its near end, continuing the well's even spacing inward."""
     if points < 6:
         raise GridError(f"the default grid needs at least 6 points, got {points}")
     re_ = expected_bond_length_bohr(z_a, z_b)
@@ -127,4 +131,25 @@ def default_grid(z_a: int, z_b: int, points: int = DEFAULT_POINTS) -> Grid:
     r = np.concatenate([well, tail])
     lo = angstrom_to_bohr(MIN_DISTANCE_ANGSTROM)
     r = r[r >= lo]
-    return Grid(tuple(float(x) for x in r), "default from covalent radii")
+    origin = "default from covalent radii"
+    if r_to is not None:
+        end = float(angstrom_to_bohr(_number(r_to, "--to")))
+        r = r[r < end * (1 - 1e-9)]
+        last = r[-1] if len(r) else end
+        while len(r) and last * ratio < end * (1 - 1e-3):
+            last *= ratio
+            r = np.append(r, last)
+        r = np.append(r, end)
+        origin += f", to {r_to} A"
+    if r_from is not None:
+        start = float(angstrom_to_bohr(_number(r_from, "--from")))
+        step = well[1] - well[0]
+        r = r[r > start * (1 + 1e-9)]
+        first = r[0] if len(r) else start
+        extra = []
+        while first - step > start * (1 + 1e-3):
+            first -= step
+            extra.append(first)
+        r = np.concatenate([[start], sorted(extra), r])
+        origin += f", from {r_from} A"
+    return Grid(tuple(float(x) for x in r), origin)

@@ -40,7 +40,7 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
     states = needed_states(species, target.spin)
     atoms_task = asyncio.ensure_future(session.atoms(method, target.level, states))
     ref, _, _ = await protocol.scan(session, ref_method, species, ref_target, r_all, ref_tally,
-                                    refine_points=False, analyse=False)
+                                    refine_points=False, analyse=False, spatial=False)
     tally.merge(ref_tally)
     n = len(r_all)
     state = method.state_plan(target.level, target.multiplicity)
@@ -75,7 +75,7 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
     else:
         final = assemble.lowest_over_branches(branches, n)
     notes += assemble.curve_notes(final, limit.energy_hartree, frag_limit, target.multiplicity,
-                                  method.capabilities.spin_square)
+                                  method.capabilities.spin_square, any(a.spin > 0 for a in limit.atoms))
     notes += [f"reference ({ref_level.method}): {note}" for note in ref.result.notes if "above the separated atoms" not in note]
     result = assemble.ScanResult(
         tuple(final), {k: tuple(v) for k, v in branches.items()}, {k: tuple(v) for k, v in sweeps.items()},

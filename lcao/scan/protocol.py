@@ -18,7 +18,7 @@ from __future__ import annotations
 
 import asyncio
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 from ..atoms import fragment_choices, needed_states, separated_atoms
 from ..methods.base import Target
@@ -93,10 +93,11 @@ def choose_multiplicity(trials) -> int:
 
 
 async def scan(session, method, species, target: Target, r_all, tally: Tally, *, refine_points: bool = True,
-               analyse: bool = True, parts: int = 1) -> tuple:
+               analyse: bool = True, parts: int = 1, spatial: bool = True) -> tuple:
     """Run the protocol over the distances ``r_all`` (bohr) and assemble the curve; with
     ``refine_points`` the refinement points about the well's minimum and with ``analyse`` the orbital
-    analysis along the curve as well.
+    analysis along the curve as well. With ``spatial``, where the lowest solution breaks the molecule's
+    spatial symmetry, its symmetry-adapted branch is computed too (:func:`symmetric_branch`).
 
     Each piece of work starts as soon as what it needs is there: the secondary branch's sweeps once the
     first unstable point is known (the inward half of the primary sweep usually finds it first), the
@@ -191,7 +192,7 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
     frag_limit = min((f.energy_hartree for f in frags), default=None)
     final = assemble.lowest_over_branches(branches, n)
     notes += assemble.curve_notes(final, limit.energy_hartree, frag_limit, target.multiplicity,
-                                  method.capabilities.spin_square)
+                                  method.capabilities.spin_square, any(a.spin > 0 for a in limit.atoms))
     result = assemble.ScanResult(
         tuple(final), {k: tuple(v) for k, v in branches.items()}, {k: tuple(v) for k, v in sweeps.items()},
         state.reference[primary], instability, limit, frag_limit, tally.computed, tally.reused, tuple(notes),
@@ -203,9 +204,67 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
         refining = asyncio.ensure_future(_refine(session, method, species, target, found, branches, well_branch, tally,
                                                  final))
     along = asyncio.ensure_future(analyse_along(session, method, done, parts)) if analyse else None
+    if spatial:
+        found_sym = await symmetric_branch(session, method, species, target, r_all, i0, final, found, tally,
+                                           refine_points)
+        if found_sym is not None:
+            sp, pts, sweep = found_sym
+            refs = {**result.references, sp.symmetric_branch:
+                    f"{result.references.get(sp.broken_branch, sp.broken_branch)} ({sp.point_group})"}
+            result = replace(result, branches={**result.branches, sp.symmetric_branch: tuple(pts)},
+                             sweeps={**result.sweeps, sweep: tuple(pts)}, references=refs, spatial=sp,
+                             notes=result.notes + (assemble.spatial_note(sp, refs),))
+            done = replace(done, result=result)
     refined = await refining if refining is not None else ()
     summaries = await along if along is not None else ()
     return done, refined, summaries
+
+
+async def symmetric_branch(session, method, species, target, r_all, i0, final, found, tally, refine_points):
+    """Where a trusted point of the curve breaks the molecule's spatial symmetry (its total density off the
+    symmetry blocks by more than :data:`lcao.scan.assemble.SPATIAL_BREAK_ELECTRONS`), the symmetry-adapted
+    copy of that point's branch over the whole grid, from equilibrium, and its refinement.
+
+    Returns:
+        (:class:`lcao.scan.assemble.SpatialBreaking`, the symmetric branch's points, its sweep's name), or
+        None where nothing breaks the symmetry, where breaking it lowers the energy by less than
+        :data:`lcao.scan.assemble.SPATIAL_MATTERS_HARTREE`, or where the method has no symmetry-adapted branch.
+    """
+    from ..methods.molecule import point_group
+    from .tasks import SpatialCheckTask
+
+    n = len(r_all)
+    items = [(i, _raw(found, p)) for i, p in enumerate(final) if p is not None and p.trusted]
+    items = [(i, raw) for i, raw in items if raw is not None]
+    if not items or method.symmetric_branch(target.level, final[items[0][0]].branch) is None:
+        return None
+    measured = (await session.run(SpatialCheckTask(method, target, tuple(raw for _, raw in items)))).value
+    off = [None] * n
+    for (i, _), x in zip(items, measured):
+        off[i] = x
+    broken = [i for i, x in enumerate(off) if x is not None and x > assemble.SPATIAL_BREAK_ELECTRONS]
+    if not broken:
+        return None
+    base = final[min(broken, key=lambda i: final[i].energy_hartree)].branch
+    name = method.symmetric_branch(target.level, base)
+    if name is None:
+        return None
+    specs = planning.from_equilibrium(name, r_all, i0)
+    got: dict = {}
+    for part in await asyncio.gather(*(session.chain(method, species, target, s, tally) for s in specs)):
+        got.update(part)
+    sweep = specs[0].sweep
+    found[sweep] = got  # the scan's own record: the analysis finds these points too
+    pts = assemble.flag_outliers(assemble.curve_points(got, n, name, sweep))
+    homonuclear = species.atoms[0] == species.atoms[1]
+    what = ("inversion symmetry (g/u): the two atoms no longer carry the same density" if homonuclear
+            else "cylindrical symmetry (sigma/pi separation)")
+    sp = assemble.spatial_breaking(final, pts, off, base, name, point_group(species.atoms), what)
+    if sp.largest_gap_hartree < assemble.SPATIAL_MATTERS_HARTREE:
+        return None
+    if refine_points:
+        sp = replace(sp, refined=await _refine(session, method, species, target, found, {name: pts}, name, tally))
+    return sp, pts, sweep
 
 
 async def _instability_start(session, method, species, target, point, branch, r_bohr):

@@ -238,3 +238,33 @@ class CorrelationTask:
 
     def run(self) -> tuple:
         return tuple(self.method.on_reference(self.target, point, branch) for point, branch in self.items)
+
+
+@dataclass(frozen=True)
+class CounterpoiseTask:
+    """The separated atoms in the dimer's basis at distances: ``items`` are (r_bohr, first atom, second atom)
+    (:class:`lcao.methods.AtomResult`); each gives (first atom in the dimer basis, second atom in it)."""
+
+    method: Method
+    level: object
+    items: tuple = field(repr=False)
+
+    def run(self) -> tuple:
+        out = []
+        for r, a, b in self.items:
+            out.append((self.method.ghost_atom(a, self.level, b.symbol, r, True),
+                        self.method.ghost_atom(b, self.level, a.symbol, r, False)))
+        return tuple(out)
+
+
+@dataclass(frozen=True)
+class SpatialCheckTask:
+    """How far each point's solution breaks the molecule's spatial symmetry
+    (:meth:`lcao.methods.Method.spatial_breaking`): a tuple of floats (None where not measured)."""
+
+    method: Method
+    target: Target
+    points: tuple = field(repr=False)
+
+    def run(self) -> tuple:
+        return tuple(self.method.spatial_breaking(self.target, p) for p in self.points)
