@@ -55,7 +55,8 @@ def test_curve_writes_documented_outputs(tmp_path, capsys):
         (["curve", "N2", "--from", "2", "--to", "1"], "greater"),
         (["curve", "N2", "--from", "a", "--to", "2"], "'a'"),
         (["curve", "N2", "--from", "0.1", "--to", "2"], "coincide"),
-        (["curve", "N2", "--from", "1"], "--to"),
+        (["curve", "N2", "--to", "abc"], "'abc'"),
+        (["curve", "N2", "--from", "0.1"], "coincide"),
         (["curve", "N2", "--multiplicity", "x"], "'x'"),
     ],
 )

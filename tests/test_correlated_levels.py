@@ -12,7 +12,6 @@ import lcao
 from lcao.cli import main
 from lcao.export.fit_fields import fit_document
 from lcao.scan.grid import range_grid
-from lcao.units import bohr_to_angstrom
 
 #: most abundant isotopes (AME2020, Wang et al. 2021; quoted from memory)
 MASS = {"N": 14.003074004, "C": 12.0, "O": 15.994914620, "H": 1.007825032, "F": 18.998403163}

@@ -11,7 +11,7 @@ import lcao
 from lcao.methods import AtomResult, Capabilities, Method, PointResult, StatePlan, register, unregister
 from lcao.scan.grid import range_grid
 from lcao.store import Store
-from lcao.units import angstrom_to_bohr, bohr_to_angstrom
+from lcao.units import bohr_to_angstrom
 
 
 def _molecule(atoms, r_bohr, level, charge, spin):

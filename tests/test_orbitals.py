@@ -7,7 +7,7 @@ import pytest
 
 from lcao.analysis import analyse
 from lcao.levels import parse_level
-from lcao.pipeline import orbitals
+from lcao.single_point import orbitals
 from lcao.methods.molecule import build_molecule
 from lcao.methods.scf import solve
 from lcao.species import parse_species
@@ -143,7 +143,7 @@ def test_valence_names():
 def test_broken_symmetry_orbitals_at_long_range_are_mixed_not_forced():
     a = analysed("H2", "STO-3G", 3.0, 1)
     # RHF at 3 A; the unrestricted solution localises the electrons on the atoms
-    from lcao.pipeline import orbitals as orb
+    from lcao.single_point import orbitals as orb
 
     res = orb("H2", "HF/STO-3G", 3.0, branch="unrestricted")
     occ = [m for m in res.analysis.orbitals if m.occupation > 0]
