@@ -12,6 +12,9 @@ Cases (each measured against its baseline in the same run):
   correlated  a 30-point CCSD(T)/cc-pVDZ curve of N2 against a hand loop (RHF and CCSD(T) with PySCF's
            defaults at each distance); the well-level ladder of N2 (B3LYP/cc-pVDZ curve, CCSD(T)/cc-pVTZ
            well and atoms), timed; the peak memory of one CCSD(T)/cc-pVQZ point;
+  multireference  a 30-point NEVPT2/cc-pVDZ curve of N2 (the whole protocol: probes skipped by the given
+           multiplicity, both halves of the sweep, refinement, atoms, analysis) against a hand loop
+           (CASSCF(10,8) from the previous distance's orbitals and NEVPT2 at each distance);
   slow     (with --slow) a 40-point N2 curve at HF/cc-pVTZ.
 Curve, series and shell cases take the best of ``--repeat`` runs of each side, the sides run in turn, and
 every tool run starts with the process caches cleared (``lcao.clear_caches``; each run starts its own
@@ -240,11 +243,55 @@ def run_correlated_case(rows):
     print(f"{rec['case']:58s} {seconds:7.1f} s  peak {mb:5.0f} MB")
 
 
+def cas_baseline(r):
+    """The hand loop of a multiconfigurational curve: CASSCF(10,8) on the full valence space (PySCF's AVAS at
+    the first distance, then each distance from the previous one's orbitals) and NEVPT2 at each distance."""
+    from pyscf import gto, mcscf, mrpt, scf
+    from pyscf.mcscf import avas
+
+    mo, prev = None, None
+    for x in r:
+        mol = gto.M(atom=f"N 0 0 0; N 0 0 {x}", basis="cc-pvdz", verbose=0)
+        mf = scf.RHF(mol)
+        mf.run()  # PySCF's own recipe projects into the RHF orbitals of the new geometry
+        mc = mcscf.CASSCF(mf, 8, 10)
+        mc.fix_spin_(ss=0)
+        if mo is None:
+            _, _, guess = avas.avas(mf, ["N 2s", "N 2p"], minao="minao", threshold=0.1, verbose=0)
+        else:
+            guess = mcscf.project_init_guess(mc, mo, prev)
+        mc.kernel(guess)
+        mrpt.NEVPT(mc).kernel()
+        mo, prev = mc.mo_coeff, mol
+
+
+def cas_tool(r):
+    import lcao
+    from lcao.methods.cache import clear_caches
+    from lcao.scan.grid import Grid
+    from lcao.units import angstrom_to_bohr
+
+    clear_caches()
+    return lcao.curve("N2", "NEVPT2/cc-pVDZ", Grid(tuple(float(angstrom_to_bohr(x)) for x in r), "benchmark"),
+                      multiplicity=1)
+
+
+def run_multireference_case(rows):
+    """A 30-point NEVPT2/cc-pVDZ curve of N2 (its default grid), the whole protocol, against the hand loop."""
+    from lcao.scan.grid import default_grid
+    from lcao.species import parse_species
+    from lcao.units import bohr_to_angstrom
+
+    r = [float(bohr_to_angstrom(x)) for x in default_grid(*parse_species("N2").z, points=30).r_bohr]
+    tb, tt = best_in_turn(1, (cas_baseline, cas_tool), r)
+    rows.append(row("curve N2 NEVPT2/cc-pVDZ (30 points)", "hand loop", tb, "lcao.curve", tt, len(r), peak_mb()))
+
+
 def main(argv=None):
     p = argparse.ArgumentParser(prog="python -m benchmarks", description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("--points", type=int, default=40)
-    p.add_argument("--cases", default="curve,series,shell,correlated",
-                   help="comma-separated: curve, series, shell, correlated, slow")
+    p.add_argument("--cases", default="curve,series,shell,correlated,multireference",
+                   help="comma-separated: curve, series, shell, correlated, multireference, slow")
     p.add_argument("--slow", action="store_true", help="also run the cc-pVTZ curve")
     p.add_argument("--repeat", type=int, default=3, help="runs of each curve, series and shell case; the shortest counts (default 3)")
     p.add_argument("--out", default=os.path.join(os.path.dirname(__file__), "results", "latest.json"))
@@ -276,6 +323,8 @@ def main(argv=None):
             run_shell_case(rows, tmp, args.repeat)
     if "correlated" in cases:
         run_correlated_case(rows)
+    if "multireference" in cases:
+        run_multireference_case(rows)
     os.makedirs(os.path.dirname(args.out), exist_ok=True)
     with open(args.out, "w") as fh:
         json.dump({"python": sys.version, "cpu_count": os.cpu_count(), "cases": rows}, fh, indent=2)

@@ -43,6 +43,8 @@ class Level:
         cartesian_source: ``'convention'`` or ``'user'``.
         frozen_core: the atoms' noble-gas cores left out of the correlation (True, the default of
             correlated methods) or not (False); None where it does not apply (Hartree-Fock, DFT).
+        active_space: (electrons, orbitals) of an active-space method's space where it is not the default
+            full valence space (written ``CASSCF(6,6)/cc-pVDZ``), else None.
     """
 
     method: str
@@ -50,10 +52,12 @@ class Level:
     cartesian: bool
     cartesian_source: str = "convention"
     frozen_core: bool | None = None
+    active_space: tuple | None = None
 
     @property
     def text(self) -> str:
-        return f"{self.method}/{self.basis}"
+        space = "" if self.active_space is None else f"({self.active_space[0]},{self.active_space[1]})"
+        return f"{self.method}{space}/{self.basis}"
 
     @property
     def cbs(self):
@@ -84,6 +88,8 @@ class Level:
     def key(self) -> str:
         """The text that identifies the level in the results store."""
         tail = "/ae" if self.frozen_core is False else ""
+        if self.active_space is not None:
+            tail += f"/cas{self.active_space[0]}.{self.active_space[1]}"
         return f"{self.method}/{self.basis.lower()}/{'cart' if self.cartesian else 'sph'}{tail}"
 
     def as_dict(self) -> dict:
@@ -96,6 +102,8 @@ class Level:
         }
         if self.frozen_core is not None:
             out["correlated_electrons"] = self.electrons_text
+        if self.active_space is not None:
+            out["active_space"] = {"electrons": self.active_space[0], "orbitals": self.active_space[1]}
         return out
 
 
@@ -144,7 +152,20 @@ def _known_basis_names() -> tuple[str, ...]:
     return tuple(sorted(basis.ALIAS))
 
 
-def parse_level(text: str, cartesian: bool | None = None, frozen_core: bool | None = None) -> Level:
+#: an active space written after an active-space method's name: CASSCF(6,6), NEVPT2(10,8)
+_SPACE = re.compile(r"^(?P<m>[A-Z0-9]+)\(\s*(?P<n>\d+)\s*,\s*(?P<k>\d+)\s*\)$")
+
+
+def parse_active_space(text: str) -> tuple[int, int]:
+    """(electrons, orbitals) of 'N,M' (the --active-space option)."""
+    m = re.match(r"^\s*(\d+)\s*,\s*(\d+)\s*$", str(text))
+    if not m:
+        raise LevelError(f"an active space is written ELECTRONS,ORBITALS, e.g. 10,8; got {text!r}")
+    return int(m.group(1)), int(m.group(2))
+
+
+def parse_level(text: str, cartesian: bool | None = None, frozen_core: bool | None = None,
+                active_space: tuple | None = None) -> Level:
     """Parse ``METHOD/BASIS``.
 
     Args:
@@ -152,6 +173,8 @@ def parse_level(text: str, cartesian: bool | None = None, frozen_core: bool | No
             ``'CCSD(T)/CBS(cc-pVTZ,cc-pVQZ)'``; the method is case-insensitive.
         cartesian: override the d-shell convention (None keeps it).
         frozen_core: for correlated methods, False correlates every electron (default: frozen core).
+        active_space: (electrons, orbitals) for an active-space method (CASSCF, NEVPT2), instead of the
+            full valence space; also written in the text, ``CASSCF(6,6)/cc-pVDZ``.
 
     Raises:
         LevelError: unknown method or basis (with the nearest names), a CBS level that is not a
@@ -164,6 +187,14 @@ def parse_level(text: str, cartesian: bool | None = None, frozen_core: bool | No
     method, _, basis = text.strip().partition("/")
     method = method.strip().upper()
     basis = basis.strip()
+    written = _SPACE.match(method)
+    if written and method_named(method) is None:
+        method = written.group("m")
+        space = (int(written.group("n")), int(written.group("k")))
+        if active_space is not None and tuple(active_space) != space:
+            raise LevelError(f"{text!r} names the active space {space[0]},{space[1]} but"
+                             f" {active_space[0]},{active_space[1]} was given too")
+        active_space = space
     family = method_named(method)
     if family is None:
         near = suggestions(method)
@@ -183,11 +214,15 @@ def parse_level(text: str, cartesian: bool | None = None, frozen_core: bool | No
             raise LevelError(f"{method} correlates no electrons separately: all-electron applies to MP2 and coupled cluster")
         if fc is not None:
             fc = bool(frozen_core)
+    if active_space is not None:
+        if not getattr(family, "takes_active_space", False):
+            raise LevelError(f"an active space applies to CASSCF and NEVPT2, not {method}")
+        active_space = (int(active_space[0]), int(active_space[1]))
     names = pair[:2] if pair else (basis,)
     if cartesian is None:
         conv = {cartesian_by_convention(b) for b in names}
-        return Level(method, basis, conv.pop() if len(conv) == 1 else False, "convention", fc)
-    return Level(method, basis, bool(cartesian), "user", fc)
+        return Level(method, basis, conv.pop() if len(conv) == 1 else False, "convention", fc, active_space)
+    return Level(method, basis, bool(cartesian), "user", fc, active_space)
 
 
 def _normalise(name: str) -> str:

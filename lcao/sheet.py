@@ -58,7 +58,13 @@ def degeneracy_from_term(term: str | None, multiplicity: int) -> tuple[int, str]
 
 
 def degeneracy_from_orbitals(analysis, multiplicity: int) -> tuple[int, str]:
-    """Lambda > 0 when the open pi shell of one spin holds an odd number of electrons (a Pi state)."""
+    """Lambda > 0 when the open pi shell of one spin holds an odd number of electrons (a Pi state); for a
+    multiconfigurational point, from the state's term identified on its CI vector."""
+    if getattr(analysis, "natural", None):
+        term = analysis.natural["state"]
+        if "Sigma" in term:
+            return multiplicity, f"{multiplicity} (spin; a {term} state, from the CI vector)"
+        return 2 * multiplicity, f"{multiplicity} (spin) x 2 (a {term} state, from the CI vector)"
     odd_pi = 0
     for spin in ("alpha", "beta", "both"):
         pis = [m for m in analysis.orbitals if m.spin == spin and (m.kind or "").startswith("pi") and m.formal_class != "core"]

@@ -99,6 +99,9 @@ class OrbitalAnalysis:
     s2_exact: float
     unpaired_orbitals: tuple[str, ...]
     overlaps: dict
+    #: for a multiconfigurational point: the active space, the state's term, the effective bond order, the
+    #: leading configuration's weight and the natural occupations (:mod:`lcao.methods.multireference`)
+    natural: dict | None = None
 
     @property
     def unpaired_electrons(self) -> int:
@@ -119,7 +122,8 @@ class OrbitalAnalysis:
         }
 
     def bond_orders(self) -> dict:
-        return {
+        out = {} if self.natural is None else {"effective": self.natural["effective_bond_order"]}
+        return out | {
             "mo_count": self.mo_count_bond_order,
             "mo_count_note": self.mo_count_note,
             "mulliken": self.mulliken_overlap,
@@ -133,6 +137,8 @@ def _spin_sets(mf):
     c = np.asarray(mf.mo_coeff)
     e = np.asarray(mf.mo_energy)
     occ = np.asarray(mf.mo_occ)
+    if getattr(mf, "natural", False):  # natural orbitals: one set, occupations between 0 and 2
+        return [("both", c, e, occ)]
     if c.ndim == 3:
         return [("alpha", c[0], e[0], occ[0]), ("beta", c[1], e[1], occ[1])]
     if np.any(occ == 1):  # ROHF: split into alpha and beta occupations
@@ -189,7 +195,8 @@ def analyse(mf, ncore: int | None = None, fock=None) -> OrbitalAnalysis:
     for spin, c, e, occ in _spin_sets(mf):
         counters: dict[str, int] = {}
         valence_seen: dict = {}
-        order = np.argsort(e, kind="stable")
+        # natural orbitals count in the order of their occupations (core, active by occupation, the rest)
+        order = np.lexsort((e, -np.round(occ, 8))) if getattr(mf, "natural", False) else np.argsort(e, kind="stable")
         all_weights = symmetry_weights_all(c, s, basis)
         all_ops = mo_overlap_populations(c, s, sl)
         all_comps = mo_compositions(c, s, groups)

@@ -34,8 +34,9 @@ def add_level_options(p, well: bool = True) -> None:
     g = p.add_argument_group("level of theory and state")
     g.add_argument("--level", default="HF/6-31G",
                    help="METHOD/BASIS: HF, RHF, UHF, ROHF; MP2, CCSD, CCSD(T) (R/U prefix for one reference); a"
-                        " density functional by name (B3LYP, PBE0, M06-2X, ...); a basis-set extrapolation"
-                        " CBS(cc-pVTZ,cc-pVQZ) for the correlated ones (default HF/6-31G)")
+                        " density functional by name (B3LYP, PBE0, M06-2X, ...); CASSCF, NEVPT2 (full valence"
+                        " active space); a basis-set extrapolation CBS(cc-pVTZ,cc-pVQZ) for the correlated ones"
+                        " (default HF/6-31G)")
     add_level_modifiers(g, well)
     g.add_argument("--charge", type=_int_arg("--charge"), help="net charge (instead of a suffix such as NO+)")
     g.add_argument(
@@ -53,6 +54,9 @@ def add_level_modifiers(g, well: bool = True) -> None:
     )
     g.add_argument("--all-electron", action="store_true",
                    help="correlate every electron (MP2, CC; default: the atoms' noble-gas cores are frozen)")
+    g.add_argument("--active-space", metavar="N_ELECTRONS,N_ORBITALS",
+                   help="the active space of CASSCF and NEVPT2 (default: the full valence space of the two atoms,"
+                        " e.g. 10,8 for N2); the chosen orbitals are listed in the output")
     if well:
         g.add_argument("--well-level", metavar="METHOD/BASIS",
                        help="a higher level for the points about the minimum and the separated atoms: r_e, the"
@@ -106,16 +110,27 @@ def _int_arg(name):
     return conv
 
 
-def resolve_level(args, text=None):
-    """The level of ``--level`` (or ``text``) with the d-shell and frozen-core options applied."""
-    from ..levels import parse_level
+def resolve_level(args, text=None, well: bool = False):
+    """The level of ``--level`` (or ``text``) with the d-shell, frozen-core and active-space options applied
+    (the active space to an active-space method's level, never to the well level)."""
+    from ..levels import parse_active_space, parse_level
 
     cart = None if args.d_shells is None else args.d_shells == "cartesian"
-    return parse_level(text or args.level, cart, False if args.all_electron else None)
+    space = getattr(args, "active_space", None)
+    lv = parse_level(text or args.level, cart, False if args.all_electron else None)
+    if space is None or well:
+        return lv
+    from ..methods import method_for
+
+    if not getattr(method_for(lv), "takes_active_space", False):
+        from ..errors import LevelError
+
+        raise LevelError(f"--active-space applies to CASSCF and NEVPT2, not {lv.method}")
+    return parse_level(text or args.level, cart, False if args.all_electron else None, parse_active_space(space))
 
 
 def resolve_well_level(args):
-    return resolve_level(args, args.well_level) if getattr(args, "well_level", None) else None
+    return resolve_level(args, args.well_level, well=True) if getattr(args, "well_level", None) else None
 
 
 def whole_points(text) -> int:

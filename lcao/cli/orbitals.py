@@ -69,15 +69,27 @@ def table_lines(res) -> list[str]:
         f"  {'spin':5s} {'label':10s} {'energy/Eh':>10s} {'occ':>4s}  {'formal class':13s} {'overlap pop.':>12s}"
         f" {'(character)':13s} {'valence name':14s} main AO components",
     ]
+    natural = a.natural is not None
+    occ_fmt = "6.3f" if natural else "4.0f"
+    if natural:
+        lines[-1] = lines[-1].replace(f"{'occ':>4s}", f"{'occ':>6s}")
     for m in a.orbitals:
         if m.occupation == 0 and m.energy_hartree > max(x.energy_hartree for x in a.orbitals if x.occupation > 0) + 1.0:
             continue
         lines.append(
-            f"  {m.spin:5s} {m.label or 'mixed':10s} {m.energy_hartree:10.4f} {m.occupation:4.0f}  {m.formal_class[:13]:13s}"
+            f"  {m.spin:5s} {m.label or 'mixed':10s} {m.energy_hartree:10.4f} {m.occupation:{occ_fmt}}  {m.formal_class[:13]:13s}"
             f" {m.overlap_population:12.4f} {('(' + m.overlap_character + ')'):13s} {m.valence_name or '':14s} {m.main_components()}"
         )
     bo = a.bond_orders()
     mo = "undefined" if bo["mo_count"] is None else f"{bo['mo_count']:.1f}"
+    if natural:
+        n = a.natural
+        eff = "undefined" if n["effective_bond_order"] is None else f"{n['effective_bond_order']:.3f}"
+        lines.append(f"  state {n['state']} in {n['active_space']} ({n['core_orbitals']} core orbitals)"
+                     + (f", averaged over {n['averaged']}" if n["averaged"] else "")
+                     + f"; leading configuration weight {n['leading_configuration_weight']:.3f}")
+        lines.append(f"  effective bond order (bonding minus antibonding natural occupations, over two): {eff}")
+        mo = eff
     lines += [
         f"  bond order: MO counting {mo};  Mayer {bo['mayer']:.3f};  Mulliken overlap population {bo['mulliken']:.3f} e;"
         f"  counting by overlap-population character {bo['overlap_character_count']:.1f}",

@@ -138,14 +138,27 @@ def _report(rows, title, paths) -> int:
     return 1 if failed else 0
 
 
+def _member_level(args, text):
+    """A ladder's level: the active space goes to the active-space levels only."""
+    from ..levels import parse_level
+    from ..methods import method_for
+
+    lv = parse_level(text, None if args.d_shells is None else args.d_shells == "cartesian",
+                     False if args.all_electron else None)
+    return resolve_level(args, text) if getattr(method_for(lv), "takes_active_space", False) else \
+        resolve_level(args, text, well=True)
+
+
 def run(args) -> int:
     from ..errors import InputError
     from ..export.io import check_out_dir
     from ..series import by_electron_count, members_from, parse_charge_range
     from ..species import parse_species
 
-    levels = [resolve_level(args, t) for t in (args.level or ["HF/6-31G"])]
-    well = resolve_level(args, args.well_level) if args.well_level else None
+    levels = [_member_level(args, t) for t in (args.level or ["HF/6-31G"])]
+    if args.active_space is not None and all(lv.active_space is None for lv in levels):
+        raise InputError("--active-space applies to CASSCF and NEVPT2, and no level is one of them")
+    well = resolve_level(args, args.well_level, well=True) if args.well_level else None
     if args.electrons is not None:
         if args.species:
             raise InputError("give species or --electrons, not both")

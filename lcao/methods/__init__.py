@@ -94,10 +94,13 @@ def _register_builtin() -> None:
     from .correlated import Correlated
     from .dft import KohnSham
     from .hf import HartreeFock
+    from .multireference import CompleteActiveSpace, Nevpt2
 
     register(HartreeFock())
     register(Correlated())
     register(KohnSham())
+    register(CompleteActiveSpace())
+    register(Nevpt2())
 
 
 _register_builtin()

@@ -68,12 +68,18 @@ class StatePlan:
             towards the other branch.
         secondary: the branch computed from the first unstable point outward and from the
             atoms inward (None: an instability is only reported).
+        from_atoms: sweeps from the separated atoms inward beside the sweep from equilibrium (a method
+            whose atoms give no start for the molecule, such as an active-space one, has none).
+        retry_flagged: a flagged point is computed again from its neighbour on the other side (the
+            lower trusted one kept).
     """
 
     primary: str
     reference: dict
     instability_check: bool = False
     secondary: str | None = None
+    from_atoms: bool = True
+    retry_flagged: bool = False
 
     @property
     def branches(self) -> tuple[str, ...]:

@@ -148,13 +148,17 @@ def plot_levels(res, ax=None, window_hartree: float = 1.0):
 
 
 def plot_bond_orders(result, ax=None):
-    """Bond orders (MO counting, Mayer, Mulliken overlap population) against distance for a curve."""
+    """Bond orders (MO counting, or the effective bond order of natural orbitals; Mayer; Mulliken overlap
+    population) against distance for a curve."""
     ax = ax or _new_axes()
     rows = [a for a in result.along if a is not None]
     if not rows:
         return ax
     r = np.array([a["r_angstrom"] for a in rows])
-    series = [("mo_count", "MO counting", dict(color="black", ls="-", marker="s", ms=3)),
+    first = ("mo_count", "MO counting")
+    if "effective" in rows[0]["bond_orders"]:  # natural orbitals: (bonding - antibonding occupations) / 2
+        first = ("effective", "effective (natural occupations)")
+    series = [(*first, dict(color="black", ls="-", marker="s", ms=3)),
               ("mayer", "Mayer", dict(color="0.3", ls="--", marker="o", ms=3)),
               ("mulliken", "Mulliken overlap population", dict(color="0.55", ls=":", marker="^", ms=3))]
     for key, label, style in series:

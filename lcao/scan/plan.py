@@ -116,7 +116,7 @@ def expected_points(n: int, plan, placements: int = 1, probes: int = 0) -> int:
     if plan.instability_check:
         sweeps = n + (int(2 * n / 3) * (1 + placements) if plan.secondary else 0)
     else:
-        sweeps = n * (1 + placements)
+        sweeps = n * (1 + (placements if plan.from_atoms else 0))
     return sweeps + 2 * REFINE_HALF + 1 + 3 * probes
 
 

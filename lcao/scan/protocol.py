@@ -179,13 +179,24 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
             lists = [record(spec.sweep, br) for br, spec, _ in later]
             branches[state.secondary] = assemble.flag_outliers(assemble.lowest(lists, n))
     else:
-        atoms = await session.atoms(method, target.level, states)
-        frags = fragment_choices(species, target.spin, atoms)
+        atoms_task = asyncio.ensure_future(session.atoms(method, target.level, states))
         specs = planning.from_equilibrium(primary, r_all, i0)
-        specs += [planning.from_atoms(primary, r_all, f.label, method.fragment_start(target, f.a, f.b, f.flip))
-                  for f in frags]
-        await asyncio.gather(*(start(s) for s in specs))
+        running = [start(s) for s in specs]
+        atoms = await atoms_task
+        frags = fragment_choices(species, target.spin, atoms)
+        if state.from_atoms:
+            more = [planning.from_atoms(primary, r_all, f.label, method.fragment_start(target, f.a, f.b, f.flip))
+                    for f in frags]
+            specs += more
+            running += [start(s) for s in more]
+        await asyncio.gather(*running)
         names = list(dict.fromkeys(s.sweep for s in specs))
+        if state.retry_flagged:
+            retried = await _retry_flagged(session, method, species, target, r_all, i0, record(names[0], primary),
+                                           found, tally)
+            if retried is not None:
+                found.setdefault(retried.sweep, {})
+                names.append(retried.sweep)
         branches[primary] = assemble.flag_outliers(assemble.lowest([record(nm, primary) for nm in names], n))
 
     limit = separated_atoms(species, atoms)
@@ -265,6 +276,32 @@ async def symmetric_branch(session, method, species, target, r_all, i0, final, f
     if refine_points:
         sp = replace(sp, refined=await _refine(session, method, species, target, found, {name: pts}, name, tally))
     return sp, pts, sweep
+
+
+async def _retry_flagged(session, method, species, target, r_all, i0, points, found, tally):
+    """Each point of the sweep from equilibrium that came back flagged, computed again from its neighbour
+    on the other side (the outer one for the outward half, the inner one for the inward half) where that
+    one is trusted; stored under ``<branch>/retry``. Returns the retry's spec (None where nothing needed it);
+    its points are in ``found``."""
+    todo = []
+    for i, p in enumerate(points):
+        if p is None or p.converged:
+            continue
+        j = i + 1 if i >= i0 else i - 1
+        if 0 <= j < len(points) and points[j] is not None and points[j].trusted:
+            raw = _raw(found, points[j])
+            if raw is not None:
+                todo.append((i, raw.warm))
+    if not todo:
+        return None
+    branch = points[todo[0][0]].branch
+    specs = [planning.SweepSpec(f"{branch}/retry", branch, tuple(r_all), (i,), warm) for i, warm in todo]
+    got = await asyncio.gather(*(session.chain(method, species, target, sp, tally) for sp in specs))
+    merged: dict = {}
+    for part in got:
+        merged.update(part)
+    found[specs[0].sweep] = merged
+    return specs[0]
 
 
 async def _instability_start(session, method, species, target, point, branch, r_bohr):

@@ -204,7 +204,7 @@ def summarise(a, point: PointResult, branch: str) -> dict:
     """The per-point summary along a curve: bond orders, unpaired electrons, <S^2>, frontier orbitals, overlaps."""
     from ..units import bohr_to_angstrom
 
-    return {
+    out = {
         "r_angstrom": float(bohr_to_angstrom(point.r_bohr)),
         "branch": branch,
         "bond_orders": a.bond_orders(),
@@ -213,6 +213,12 @@ def summarise(a, point: PointResult, branch: str) -> dict:
         "frontier": a.frontier(),
         "overlaps": {k: v for k, v in a.overlaps.items() if k != "functions"},
     }
+    if a.natural is not None:  # a multiconfigurational point: what its natural orbitals say
+        out.update(effective_bond_order=a.natural["effective_bond_order"],
+                   natural_occupations=a.natural["natural_occupations"],
+                   leading_configuration_weight=a.natural["leading_configuration_weight"],
+                   state=a.natural["state"])
+    return out
 
 
 @dataclass(frozen=True)
