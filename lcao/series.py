@@ -119,6 +119,8 @@ class SeriesRow:
         branch: the branch followed ('lowest' or 'symmetric'); spatial_broken: whether the lowest solution
             breaks the molecule's spatial symmetry (both branches were then fitted); spatial_in_well: whether
             that changes the well (:func:`lcao.outcome.branches_differ`).
+        electronic_degeneracy: of the state at the minimum, from the orbitals or the CI vector (for the
+            kinetics files); level_spec: the member's :class:`lcao.levels.Level`.
     """
 
     species: str
@@ -140,6 +142,8 @@ class SeriesRow:
     branch: str = "lowest"
     spatial_broken: bool = False
     spatial_in_well: bool = False
+    electronic_degeneracy: int | None = None
+    level_spec: object = None
 
 
 def _handbook(species: Species) -> dict:
@@ -176,19 +180,22 @@ async def run_member_async(session, member: Member) -> SeriesRow:
     common = dict(multiplicity=res.multiplicity, reference=res.scan.reference, points=len(res.points),
                   trusted_points=len(res.trusted_points), limit_energy_hartree=res.limit_energy_hartree, handbook=hb,
                   verdict=res.verdict, branch=res.branch, spatial_broken=res.scan.spatial is not None,
-                  spatial_in_well=branches_differ(res))
+                  spatial_in_well=branches_differ(res), level_spec=lv)
     if res.verdict is not None and res.verdict.kind not in (BOUND, METASTABLE):
         # a result: the curve says there is no bond here, and no constants are given that would invite misuse
         return SeriesRow(sp.label, lv.text, "ok", None, fit=res.fit, notes=tuple(res.scan.notes) + res.warnings,
                          orbital_error=f"no orbitals at a minimum: {res.verdict.kind}", **common)
     if res.fit is None:
         return SeriesRow(sp.label, lv.text, "failed", f"no fit: {res.fit_error}", notes=res.scan.notes, **common)
-    summary, error, levels = None, None, ()
+    summary, error, levels, g_el = None, None, (), None
     try:
         orb = await orbitals_async(session, sp, lv, at_minimum=True, multiplicity=res.multiplicity, grid=grid, base=res)
         a = orb.analysis
         bo = a.bond_orders()
         summary = OrbitalSummary(bo["mo_count"], bo["mayer"], bo["mulliken"], a.unpaired_electrons, a.magnetism, a.s2)
+        from .sheet import degeneracy_from_orbitals
+
+        g_el = degeneracy_from_orbitals(a, res.multiplicity)[0]
         levels = tuple(
             {"label": m.label, "kind": m.kind, "spin": m.spin, "energy_hartree": m.energy_hartree,
              "occupation": m.occupation, "formal_class": m.formal_class}
@@ -197,7 +204,8 @@ async def run_member_async(session, member: Member) -> SeriesRow:
     except LcaoError as exc:
         error = str(exc)
     return SeriesRow(sp.label, lv.text, "ok", None, fit=res.fit, orbitals=summary, orbital_error=error,
-                     valence_levels=levels, notes=tuple(res.scan.notes) + tuple(res.fit.warnings), **common)
+                     valence_levels=levels, notes=tuple(res.scan.notes) + tuple(res.fit.warnings),
+                     electronic_degeneracy=g_el, **common)
 
 
 def expected_cost(member: Member) -> float:

@@ -27,7 +27,6 @@ SHEET_SCHEMA_VERSION = 1
 ENERGY_FIELDS = ("de", "d0", "morse_de", "zpe", "we", "wexe", "be", "alpha_e")
 LENGTH_FIELDS = ("re", "morse_re")
 SOURCES = ("computed", "handbook", "mixed")
-DEFAULT_T_GRID = tuple(float(x) for x in np.concatenate([[200.0, 250.0, 298.15], np.arange(300.0, 6000.1, 50.0)]))
 #: nuclear spins of the hydrogen isotopes (ortho/para treatment of H2, D2, T2)
 HYDROGEN_NUCLEAR_SPIN = {1: 0.5, 2: 1.0, 3: 0.5}
 
@@ -91,6 +90,9 @@ class Sheet:
     thermo: dict
     nasa: object
     warnings: tuple = field(default=())
+    species_set: tuple = ()  # ThermoEntry: the molecule, its atoms, the electron for an ion (the kinetics files)
+    dissociation: object = None  # lcao.thermo.equilibrium.Dissociation, None without D_0
+    handoff: dict = field(default_factory=dict)  # reference pressure, polynomial form, D_0 and its level
 
 
 def _computed_constants(species, level, multiplicity, grid, store, isotopes, workers=None, progress=None,
@@ -116,27 +118,9 @@ def _computed_constants(species, level, multiplicity, grid, store, isotopes, wor
 
     with open_session(store, workers, basis_size(species, level), progress) as session:
         res, orb = run_sync(both(session))
-    f = res.fit
-    c = f.constants
-    levels = tuple(g * HARTREE_CM1 for g in f.levels.energies) if f.levels is not None else ()
     g_el, g_why = degeneracy_from_orbitals(orb.analysis, res.multiplicity)
-    vals = {
-        "re": f.local.re,
-        "de": f.de,
-        "d0": f.d0,
-        "morse_de": f.morse.de if f.morse else None,
-        "morse_a_per_bohr": f.morse.a if f.morse else None,
-        "morse_re": f.morse.re if f.morse else None,
-        "k_hartree_per_bohr2": f.local.k,
-        "we": c["we"],
-        "wexe": c["wexe"],
-        "be": c["be"],
-        "alpha_e": c["alpha_e"],
-        "zpe": f.levels.zpe if f.levels is not None else None,
-        "unpaired_electrons": orb.analysis.unpaired_electrons,
-        "multiplicity": res.multiplicity,
-        "electronic_degeneracy": g_el,
-    }
+    vals, levels = fit_values(res.fit, res.multiplicity, g_el, orb.analysis.unpaired_electrons)
+    f = res.fit
     prov = {
         "level": res.level.as_dict(),
         "reference": res.scan.reference,
@@ -154,6 +138,30 @@ def _computed_constants(species, level, multiplicity, grid, store, isotopes, wor
     }
     warns = tuple(res.scan.notes) + tuple(f.warnings)
     return vals, prov, levels, warns, res
+
+
+def fit_values(f, multiplicity: int, degeneracy: int, unpaired: int | None) -> tuple[dict, tuple]:
+    """The sheet's constants (atomic units) and vibrational levels (cm-1, from the minimum) of a curve fit."""
+    c = f.constants
+    levels = tuple(g * HARTREE_CM1 for g in f.levels.energies) if f.levels is not None else ()
+    vals = {
+        "re": f.local.re,
+        "de": f.de,
+        "d0": f.d0,
+        "morse_de": f.morse.de if f.morse else None,
+        "morse_a_per_bohr": f.morse.a if f.morse else None,
+        "morse_re": f.morse.re if f.morse else None,
+        "k_hartree_per_bohr2": f.local.k,
+        "we": c["we"],
+        "wexe": c["wexe"],
+        "be": c["be"],
+        "alpha_e": c["alpha_e"],
+        "zpe": f.levels.zpe if f.levels is not None else None,
+        "unpaired_electrons": unpaired,
+        "multiplicity": multiplicity,
+        "electronic_degeneracy": degeneracy,
+    }
+    return vals, levels
 
 
 def _handbook_constants(species):
@@ -196,22 +204,37 @@ def build_sheet(
     anharmonic: bool = False,
     dhf298_kj_per_mol: float | None = None,
     polynomial: str = "nasa7",
-    t_grid=DEFAULT_T_GRID,
     workers: int | None = None,
     progress=None,
     well_level=None,
     counterpoise: bool = False,
     branch: str = "lowest",
+    reference_pressure: str = "1bar",
+    name_suffix: str = "",
+    temperature_range=None,
+    pressure_bar: float = 1.0,
+    precomputed: tuple | None = None,
 ) -> Sheet:
-    """Build the parameter sheet of one species (see the module docstring)."""
+    """Build the parameter sheet of one species (see the module docstring).
+
+    The kinetics hand-off: ``temperature_range`` (low, common, high) in K for every polynomial (default
+    200, 1000, 6000), ``reference_pressure`` '1bar' or '1atm' for the files, ``name_suffix`` appended to
+    the molecule's name there, ``pressure_bar`` for the degree of dissociation. ``precomputed``: (constants,
+    provenance, levels_cm1, warnings) of a curve already fitted (a series member), used instead of running
+    the curve."""
     from . import __version__
     from .masses import resolve_isotopes
     from .pipeline import caution_for, resolve_inputs
     from .species import Species, parse_species
     from .thermo import MoleculeConstants, fit_nasa, thermo_table
 
+    from .thermo.handoff import check_handoff, kinetics_handoff
+    from .thermo.species_set import DEFAULT_RANGE_K, check_range
+
     if source not in SOURCES:
         raise InputError(f"source {source!r} is not one of {', '.join(SOURCES)}")
+    t_range = check_range(temperature_range or DEFAULT_RANGE_K)
+    check_handoff(reference_pressure, pressure_bar)
     sp = species if isinstance(species, Species) else parse_species(species)
     warns: list[str] = []
     prov: dict = {"source": source}
@@ -221,11 +244,15 @@ def build_sheet(
     if source in ("computed", "mixed"):
         if level is None:
             raise InputError("a computed sheet needs a level of theory (--level)")
-        sp, lv, grid = resolve_inputs(sp, level, grid, multiplicity, None, points)
-        if well_level is not None:
-            _, well_level, _ = resolve_inputs(sp, well_level, grid, multiplicity)
-        cvals, cprov, levels_cm1, cw, _res = _computed_constants(sp, lv, multiplicity, grid, store, isotopes, workers,
-                                                                 progress, well_level, counterpoise, branch)
+        if precomputed is not None:
+            lv = level
+            cvals, cprov, levels_cm1, cw = precomputed
+        else:
+            sp, lv, grid = resolve_inputs(sp, level, grid, multiplicity, None, points)
+            if well_level is not None:
+                _, well_level, _ = resolve_inputs(sp, well_level, grid, multiplicity)
+            cvals, cprov, levels_cm1, cw, _res = _computed_constants(sp, lv, multiplicity, grid, store, isotopes,
+                                                                     workers, progress, well_level, counterpoise, branch)
         vals.update(cvals)
         field_sources.update({k: "computed" for k, v in cvals.items() if v is not None})
         prov.update(cprov)
@@ -244,6 +271,9 @@ def build_sheet(
             prov.update(hprov)
     iso = resolve_isotopes(sp.atoms, isotopes)
     mu = iso.reduced_mass_dalton
+    if vals.get("be") is None and vals.get("re") is not None:  # B_e = hbar^2 / (2 mu r_e^2), in atomic units
+        vals["be"] = 1.0 / (2.0 * iso.reduced_mass_me * vals["re"] ** 2)
+        field_sources["be"] = f"derived from the {field_sources.get('re', 'given')} r_e: B_e = 1/(2 mu r_e^2)"
     sigma = 2 if (sp.homonuclear and iso.mass_numbers[0] == iso.mass_numbers[1]) else 1
     nuc_spin = HYDROGEN_NUCLEAR_SPIN.get(iso.mass_numbers[0]) if (sigma == 2 and sp.atoms[0] == "H") else None
     # vibrational levels for the sheet and the partition function
@@ -292,18 +322,28 @@ def build_sheet(
     b0 = b_cm1 - 0.5 * vals["alpha_e"] * HARTREE_CM1 if vals.get("alpha_e") is not None else b_cm1
     molc = MoleculeConstants(sum(iso.masses_dalton), sigma, b0, we_cm1, int(vals.get("electronic_degeneracy") or 1),
                              levels_cm1 if anharmonic else None, nuc_spin)
-    t = np.asarray(t_grid, float)
+    from .thermo.species_set import fragments_of, temperature_grid
+
+    t = temperature_grid(t_range)
     table = thermo_table(molc, t)
     s298 = float(thermo_table(molc, [298.15])["s_j_per_mol_k"][0])
+    fragments = fragments_of(sp, iso.mass_numbers)
     dhf_note = "given by the user"
     if dhf298_kj_per_mol is None:
-        dhf298_kj_per_mol, dhf_note = derived_dhf298(sp, vals, molc)
+        dhf298_kj_per_mol, dhf_note = derived_dhf298(sp, vals, molc, fragments)
         warns.append(dhf_note)
-    nasa = fit_nasa(t, table["cp_j_per_mol_k"], s298, dhf298_kj_per_mol, form=polynomial)
+    lo, mid, hi = t_range
+    nasa = fit_nasa(t, table["cp_j_per_mol_k"], s298, dhf298_kj_per_mol, lo, mid, hi, form=polynomial)
     rec["dhf298_kj_per_mol"] = dhf298_kj_per_mol
     rec["s298_j_per_mol_k"] = s298
     rec["cp298_j_per_mol_k"] = float(thermo_table(molc, [298.15])["cp_j_per_mol_k"][0])
     rec["h298_minus_h0_kj_per_mol"] = float(table["h298_minus_h0_kj_per_mol"])
+    level_text = {"computed": f"constants from {rec['level']}",
+                  "handbook": f"handbook constants ({(prov.get('handbook_row') or {}).get('source', 'shipped table')})",
+                  "mixed": f"handbook constants where the table has them, else from {rec['level']}"}[source]
+    species_set, dissoc, handoff = kinetics_handoff(
+        sp, molc, table, nasa, fragments, vals, t_range, polynomial, reference_pressure, name_suffix, pressure_bar,
+        f"{sp.label}: {level_text}; Delta_f H(298.15 K) {dhf298_kj_per_mol:.3f} kJ/mol {dhf_note}")
     import pyscf
 
     prov.update(
@@ -319,35 +359,31 @@ def build_sheet(
         warnings=warns,
         caution=(caution_for(lv) + " " if source != "handbook" else "") + SHEET_CAUTION,
     )
-    return Sheet(rec, prov, levels_cm1, table, nasa, tuple(warns))
+    return Sheet(rec, prov, levels_cm1, table, nasa, tuple(warns), species_set, dissoc, handoff)
 
 
-def derived_dhf298(sp, vals, molc) -> tuple[float, str]:
-    """Delta_f H(298.15) from D_0 and the atoms' enthalpies of formation, with its caution."""
-    from .data import atomic_enthalpies
-    from .thermo.statistical import R, T_REF
+def derived_dhf298(sp, vals, molc, fragments) -> tuple[float, str]:
+    """Delta_f H(298.15) from D_0 and the separated atoms' enthalpies of formation, with its caution.
 
-    table = atomic_enthalpies()
-    missing = [s for s in sp.atoms if s not in table]
-    if missing or vals.get("d0") is None:
-        raise InputError(
-            f"cannot derive the enthalpy of formation of {sp.label}"
-            + (f": no atomic enthalpy of formation for {', '.join(missing)}" if missing else ": no D_0")
-            + "; give it with --dhf298 (kJ/mol)"
-        )
-    if sp.charge != 0:
-        raise InputError(f"{sp.label} is an ion: give its enthalpy of formation with --dhf298 (kJ/mol)")
-    from .thermo import thermo_table
+    Delta_f H(AB) = Delta_f H(A) + Delta_f H(B) - D_0 - [H298 - H0](A) - [H298 - H0](B) + [H298 - H0](AB),
+    with every H298 - H0 from the same partition functions as the tables (atoms with their fine structure),
+    so that the kinetics files reproduce K_p from D_0."""
+    from .thermo.species_set import atom_dhf298, thermal_enthalpy_298
 
+    if vals.get("d0") is None:
+        raise InputError(f"cannot derive the enthalpy of formation of {sp.label}: no D_0; give it with --dhf298 (kJ/mol)")
+    try:
+        atoms_dhf = [atom_dhf298(a)[0] for a in fragments]
+    except InputError as exc:
+        raise InputError(f"cannot derive the enthalpy of formation of {sp.label}: {exc}; give it with --dhf298 (kJ/mol)") from None
     d0_kj = vals["d0"] * ENERGY_UNITS["kj_per_mol"]
-    h_atoms = 2 * 2.5 * R * T_REF / 1000.0  # H298 - H0 of two structureless atoms
-    h_mol = float(thermo_table(molc, [T_REF])["h298_minus_h0_kj_per_mol"])
-    dhf = sum(table[s]["dhf298_kj_per_mol"] for s in sp.atoms) - d0_kj - h_atoms + h_mol
+    h_atoms = sum(thermal_enthalpy_298(a) for a in fragments)
+    dhf = sum(atoms_dhf) - d0_kj - h_atoms + thermal_enthalpy_298(molc)
+    products = " + ".join(a.name for a in fragments)
     note = (
-        f"enthalpy of formation derived from D_0 = {d0_kj:.1f} kJ/mol and the atoms' CODATA values: it inherits"
-        " the whole error of D_0 at this level (hundreds of kJ/mol at Hartree-Fock, a few at CCSD(T) near the basis-set"
-        " limit); supply a validated value"
-        " with --dhf298 for any real use (atoms' H298 - H0 taken as 5/2 RT, good to about 1 kJ/mol)"
+        f"enthalpy of formation derived from D_0 = {d0_kj:.1f} kJ/mol (to {products}) and the atoms' shipped values:"
+        " it inherits the whole error of D_0 at this level (hundreds of kJ/mol at Hartree-Fock, a few at CCSD(T) near"
+        " the basis-set limit); supply a validated value with --dhf298 for any real use"
     )
     return float(dhf), note
 

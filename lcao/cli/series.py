@@ -67,15 +67,20 @@ def add_run_arguments(p: argparse.ArgumentParser) -> None:
     add_workers_option(p)
 
 
-def write_series(rows, out: str, title: str, plots: bool) -> list[str]:
+def write_series(rows, out: str, title: str, plots: bool) -> tuple[list[str], list[str]]:
+    """Write the group's files; returns the paths and the members left out of the kinetics files."""
     from ..export.io import atomic_write_bytes, ensure_dir
     from ..export.series_files import SERIES_WRITERS
+    from ..export.series_kinetics import series_kinetics
 
     rendered = {name: fn(rows, title) for name, fn in SERIES_WRITERS.items()}
+    kinetics, left_out = series_kinetics(rows, title)
+    rendered.update(kinetics)
     ensure_dir(out)
     paths = []
     for name, data in rendered.items():
         path = os.path.join(out, name)
+        ensure_dir(os.path.dirname(path))
         atomic_write_bytes(path, data)
         paths.append(path)
     if plots and any(r.status == "ok" for r in rows):
@@ -86,7 +91,7 @@ def write_series(rows, out: str, title: str, plots: bool) -> list[str]:
             ax = fn(rows)
             ax.set_title(title, fontsize=9)
             paths += save_figure(ax, os.path.join(out, stem))
-    return paths
+    return paths, left_out
 
 
 def table_lines(rows) -> list[str]:
@@ -123,7 +128,8 @@ def table_lines(rows) -> list[str]:
     return lines
 
 
-def _report(rows, title, paths) -> int:
+def _report(rows, title, written) -> int:
+    paths, left_out = written
     print(title)
     for line in table_lines(rows):
         print("  " + line)
@@ -134,6 +140,8 @@ def _report(rows, title, paths) -> int:
 
     for text in dict.fromkeys(caution_for(lv) for lv in levels_of(rows)):
         print(f"  caution: {text}")
+    for line in left_out:
+        print(f"  not in the kinetics files: {line}")
     print(f"  wrote: {', '.join(paths)}")
     return 1 if failed else 0
 

@@ -8,7 +8,11 @@ quoted from memory and have not been checked against the printed table.
 atoms (CODATA Key Values), for enthalpies of formation derived from a
 computed atomisation energy.
 ``atomic_fine_structure.csv``: the J levels of the atoms' and atomic ions'
-ground terms (NIST Atomic Spectra Database), for spin-orbit corrections.
+ground terms (NIST Atomic Spectra Database), for spin-orbit corrections and
+the atoms' electronic partition functions.
+``atomic_ionization.csv``: first ionisation energies and electron affinities
+(NIST ASD; Andersen, Haugen & Hotop 1999), for the enthalpies of formation of
+atomic and molecular ions.
 """
 
 from __future__ import annotations
@@ -57,4 +61,17 @@ def fine_structure() -> dict[tuple[str, int], dict]:
     for row in csv.DictReader(text.splitlines()):
         levels = tuple((float(j), float(e)) for j, e in (part.split(":") for part in row["levels_j_cm1"].split(";")))
         out[(row["symbol"], int(row["charge"]))] = {**row, "levels": levels}
+    return out
+
+
+@lru_cache(maxsize=1)
+def ionization() -> dict[str, dict]:
+    """Element symbol -> {'ionization_energy_ev', 'electron_affinity_ev' (None: no bound anion), 'source',
+    'checked'}: for the enthalpies of formation of atomic ions and of molecular ions derived from them."""
+    text = resources.files(__package__).joinpath("atomic_ionization.csv").read_text(encoding="utf-8")
+    out = {}
+    for row in csv.DictReader(text.splitlines()):
+        ea = row["electron_affinity_ev"]
+        out[row["symbol"]] = {**row, "ionization_energy_ev": float(row["ionization_energy_ev"]),
+                              "electron_affinity_ev": float(ea) if ea else None}
     return out

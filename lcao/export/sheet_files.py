@@ -45,8 +45,42 @@ def _doc(sheet):
     return json_text(sheet_document(sheet)).encode()
 
 
+def _kinetics(kind):
+    def write(sheet):
+        from .kinetics_files import nasa7_text, species_yaml
+
+        p = sheet.provenance
+        args = (list(sheet.species_set), sheet.handoff, p["date"], p["versions"])
+        if kind == "yaml":
+            return species_yaml(*args, phase=f"{sheet.species_set[0].name}-dissociation").encode()
+        return nasa7_text(*args).encode()
+    return write
+
+
+def _dissociation(sheet):
+    from .kinetics_files import dissociation_csv
+
+    return dissociation_csv(sheet.dissociation, sheet.handoff, d0_origin(sheet)).encode()
+
+
+def d0_origin(sheet) -> str:
+    """Where the sheet's D_0 comes from: the level of theory or the handbook row."""
+    src = sheet.provenance.get("field_sources", {}).get("d0", "computed")
+    if src == "handbook":
+        row = sheet.provenance.get("handbook_row") or {}
+        return f"the handbook ({row.get('source', 'shipped table')})"
+    return sheet.record["level"]
+
+
 SHEET_WRITERS = {
     "sheet.json": _doc,
     "sheet.csv": lambda sheet: sheet_csv(sheet).encode(),
     "thermo.csv": lambda sheet: thermo_csv(sheet).encode(),
+    "thermo-species.yaml": _kinetics("yaml"),
+    "thermo-nasa7.txt": _kinetics("nasa7"),
 }
+
+
+def sheet_writers(sheet) -> dict:
+    """The writers for one sheet: ``dissociation.csv`` only where there is a D_0 to rest on."""
+    return {**SHEET_WRITERS, **({"dissociation.csv": _dissociation} if sheet.dissociation is not None else {})}

@@ -14,6 +14,10 @@ relative error with Cp equal at the common temperature (a Lagrange
 constraint); the low range's integration constants fix H(298.15 K) to the
 standard enthalpy of formation and S(298.15 K) to the statistical value,
 and the high range's are set so that H and S are continuous.
+
+Every coefficient is rounded to the nine significant digits that the
+fixed-column layout holds (E15.8) before the next constant is computed from
+it, so the kinetics files carry exactly the polynomials lcao evaluates.
 """
 
 from __future__ import annotations
@@ -55,6 +59,7 @@ class NasaFit:
     ranges: tuple[NasaRange, NasaRange]
     t_common: float
     dhf298_kj_per_mol: float
+    reference_pressure_pa: float = 1e5
 
     def _range(self, t):
         return self.ranges[0] if t <= self.t_common else self.ranges[1]
@@ -98,6 +103,7 @@ class NasaFit:
             "reference": "McBride, Gordon & Reno, NASA TM-4513 (1993)" if self.form == "nasa7" else "McBride, Zehe & Gordon, NASA/TP-2002-211556",
             "t_common_k": self.t_common,
             "dhf298_kj_per_mol": self.dhf298_kj_per_mol,
+            "reference_pressure_pa": self.reference_pressure_pa,
             "ranges": [
                 {
                     "t_low_k": r.t_low,
@@ -120,6 +126,20 @@ def _value(form, r: NasaRange, t, which):
     if which == 1:
         return R * t * (h_b(t) @ a + r.h_constant / t)
     return R * (s_b(t) @ a + r.s_constant)
+
+
+def published(x: float) -> float:
+    """``x`` rounded to the nine significant digits of the fixed-column layout."""
+    return float(f"{x:.8E}")
+
+
+def at_reference_pressure(fit: NasaFit, pressure_pa: float) -> NasaFit:
+    """The same polynomials for a standard state at ``pressure_pa`` instead of 1 bar: only the entropy
+    constant changes, by -ln(p/1 bar) (ideal gas), so S and G move by R ln(p/1 bar) and Cp, H do not."""
+    from dataclasses import replace
+
+    shift = np.log(pressure_pa / 1e5)
+    return replace(fit, reference_pressure_pa=float(pressure_pa), ranges=tuple(replace(r, s_constant=published(r.s_constant - shift)) for r in fit.ranges))
 
 
 def fit_nasa(t_table, cp_table, s298: float, dhf298_kj_per_mol: float, t_low=200.0, t_common=1000.0, t_high=6000.0, form="nasa7") -> NasaFit:
@@ -161,17 +181,17 @@ def fit_nasa(t_table, cp_table, s298: float, dhf298_kj_per_mol: float, t_low=200
     C = np.vstack([c0, c1])
     kkt = np.block([[As.T @ As, C.T], [C, np.zeros((2, 2))]])
     sol = np.linalg.solve(kkt, np.concatenate([As.T @ y, np.zeros(2)]))
-    x = sol[: 2 * n] / scale
+    x = np.array([published(v) for v in sol[: 2 * n] / scale])
     a_lo, a_hi = x[:n], x[n:]
     # integration constants
     t298 = np.array([T_REF])
     h298 = dhf298_kj_per_mol * 1000.0
-    h_lo = h298 / R - T_REF * (h_b(t298)[0] @ a_lo)
-    s_lo = s298 / R - s_b(t298)[0] @ a_lo
+    h_lo = published(h298 / R - T_REF * (h_b(t298)[0] @ a_lo))
+    s_lo = published(s298 / R - s_b(t298)[0] @ a_lo)
     h_c = tc[0] * (h_b(tc)[0] @ a_lo) + h_lo
     s_c = s_b(tc)[0] @ a_lo + s_lo
-    h_hi = h_c - tc[0] * (h_b(tc)[0] @ a_hi)
-    s_hi = s_c - s_b(tc)[0] @ a_hi
+    h_hi = published(h_c - tc[0] * (h_b(tc)[0] @ a_hi))
+    s_hi = published(s_c - s_b(tc)[0] @ a_hi)
 
     def resid(a, mask):
         return float(np.max(np.abs(cp_b(t[mask]) @ a / cp[mask] - 1.0))) if mask.any() else 0.0

@@ -141,10 +141,19 @@ def thermo_functions(mol: MoleculeConstants, t) -> dict:
     }
 
 
-def thermo_table(mol: MoleculeConstants, t) -> dict:
-    """Cp, S, H(T) - H(298.15 K) and the Gibbs energy function -(G - H(298.15))/T."""
-    f = thermo_functions(mol, t)
-    h298 = float(thermo_functions(mol, [T_REF])["h_thermal_j_per_mol"][0])
+def functions_of(constants):
+    """The partition-function routine for a molecule's or an atom's constants."""
+    from .atoms import AtomConstants, atom_functions
+
+    return atom_functions if isinstance(constants, AtomConstants) else thermo_functions
+
+
+def thermo_table(mol, t) -> dict:
+    """Cp, S, H(T) - H(298.15 K) and the Gibbs energy function -(G - H(298.15))/T of a molecule
+    (:class:`MoleculeConstants`) or an atom (:class:`lcao.thermo.atoms.AtomConstants`)."""
+    fn = functions_of(mol)
+    f = fn(mol, t)
+    h298 = float(fn(mol, [T_REF])["h_thermal_j_per_mol"][0])
     dh = f["h_thermal_j_per_mol"] - h298
     gef = f["s_j_per_mol_k"] - dh / f["t_k"]
     return {
