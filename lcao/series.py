@@ -121,6 +121,8 @@ class SeriesRow:
             that changes the well (:func:`lcao.outcome.branches_differ`).
         electronic_degeneracy: of the state at the minimum, from the orbitals or the CI vector (for the
             kinetics files); level_spec: the member's :class:`lcao.levels.Level`.
+        files: the member's own files (name -> bytes: curve.json, points.csv, curve.svg, orbital-levels.svg),
+            written to its folder (:func:`member_folder`) beside the group's table.
     """
 
     species: str
@@ -144,6 +146,7 @@ class SeriesRow:
     spatial_in_well: bool = False
     electronic_degeneracy: int | None = None
     level_spec: object = None
+    files: dict = field(default_factory=dict)
 
 
 def _handbook(species: Species) -> dict:
@@ -177,7 +180,8 @@ async def run_member_async(session, member: Member) -> SeriesRow:
     from .fit.verdict import BOUND, METASTABLE
     from .outcome import branches_differ
 
-    common = dict(multiplicity=res.multiplicity, reference=res.scan.reference, points=len(res.points),
+    files = member_files(res)
+    common = dict(files=files, multiplicity=res.multiplicity, reference=res.scan.reference, points=len(res.points),
                   trusted_points=len(res.trusted_points), limit_energy_hartree=res.limit_energy_hartree, handbook=hb,
                   verdict=res.verdict, branch=res.branch, spatial_broken=res.scan.spatial is not None,
                   spatial_in_well=branches_differ(res), level_spec=lv)
@@ -196,6 +200,7 @@ async def run_member_async(session, member: Member) -> SeriesRow:
         from .sheet import degeneracy_from_orbitals
 
         g_el = degeneracy_from_orbitals(a, res.multiplicity)[0]
+        files["orbital-levels.svg"] = _svg(orb, "levels")
         levels = tuple(
             {"label": m.label, "kind": m.kind, "spin": m.spin, "energy_hartree": m.energy_hartree,
              "occupation": m.occupation, "formal_class": m.formal_class}
@@ -206,6 +211,40 @@ async def run_member_async(session, member: Member) -> SeriesRow:
     return SeriesRow(sp.label, lv.text, "ok", None, fit=res.fit, orbitals=summary, orbital_error=error,
                      valence_levels=levels, notes=tuple(res.scan.notes) + tuple(res.fit.warnings),
                      electronic_degeneracy=g_el, **common)
+
+
+def member_folder(species: str, level: str) -> str:
+    """The folder of one member inside its group's folder: ``N2_HF-6-31G``, ``NO+_CCSD-T--cc-pVTZ``."""
+    return f"{species}_{level_slug(level)}"
+
+
+def level_slug(level: str) -> str:
+    """A level as a file name, one to one for the usual names: ``HF-6-31Gstar``, ``CCSD-T-_cc-pVTZ``."""
+    import re
+
+    text = level.replace("*", "star").replace("+", "plus").replace("/", "-").replace("(", "-").replace(")", "-")
+    return re.sub(r"[^A-Za-z0-9._-]+", "_", text).strip("-")
+
+
+def _svg(result, kind: str) -> bytes:
+    import io
+
+    from .plots import plot_curve, plot_levels
+
+    ax = (plot_curve if kind == "curve" else plot_levels)(result)
+    ax.figure.tight_layout()
+    buf = io.BytesIO()
+    ax.figure.savefig(buf, format="svg")
+    return buf.getvalue()
+
+
+def member_files(res) -> dict:
+    """curve.json and points.csv as `lcao curve` writes them, and the curve as SVG."""
+    from .export.curve_files import CURVE_WRITERS
+
+    files = {name: fn(res) for name, fn in CURVE_WRITERS.items()}
+    files["curve.svg"] = _svg(res, "curve")
+    return files
 
 
 def expected_cost(member: Member) -> float:

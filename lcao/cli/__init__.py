@@ -13,7 +13,7 @@ import sys
 
 from .. import __version__
 
-COMMANDS = ("curve", "orbitals", "series", "run", "sheet")
+COMMANDS = ("curve", "orbitals", "series", "run", "sheet", "report")
 
 
 class OneLineParser(argparse.ArgumentParser):
@@ -35,6 +35,7 @@ def build_parser() -> argparse.ArgumentParser:
     from . import curve as _curve
     from . import orbitals as _orbitals
     from . import series as _series
+    from . import report as _report
     from . import sheet as _sheet
 
     table = (
@@ -43,6 +44,7 @@ def build_parser() -> argparse.ArgumentParser:
         ("series", _series.HELP, _series.DESCRIPTION, _series.add_arguments, _series.run),
         ("run", _series.RUN_HELP, _series.RUN_HELP, _series.add_run_arguments, _series.run_study),
         ("sheet", _sheet.HELP, _sheet.DESCRIPTION, _sheet.add_arguments, _sheet.run),
+        ("report", _report.HELP, _report.DESCRIPTION, _report.add_arguments, _report.run),
     )
     for name, help_text, description, add_arguments, run in table:
         p = sub.add_parser(name, help=help_text, description=description)

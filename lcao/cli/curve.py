@@ -291,6 +291,9 @@ def run(args) -> int:
         from ..plots import CURVE_FIGURES, save_figures
 
         paths += save_figures(CURVE_FIGURES, result, out)
+    from .report import write_page
+
+    paths.append(write_page(out))
     for line in summary_lines(result):
         print(line)
     print(f"  wrote: {', '.join(paths)}")

@@ -76,13 +76,20 @@ def write_series(rows, out: str, title: str, plots: bool) -> tuple[list[str], li
     rendered = {name: fn(rows, title) for name, fn in SERIES_WRITERS.items()}
     kinetics, left_out = series_kinetics(rows, title)
     rendered.update(kinetics)
+    from ..series import member_folder
+
+    for r in rows:
+        for name, data in r.files.items():
+            rendered[f"{member_folder(r.species, r.level)}/{name}"] = data
     ensure_dir(out)
     paths = []
     for name, data in rendered.items():
         path = os.path.join(out, name)
         ensure_dir(os.path.dirname(path))
         atomic_write_bytes(path, data)
-        paths.append(path)
+        folder = os.path.join(out, name.split("/")[0]) + os.sep if "/" in name else path
+        if folder not in paths:
+            paths.append(folder)
     if plots and any(r.status == "ok" for r in rows):
         from ..plots import save_figure
         from ..plots.series_plot import SERIES_FIGURES
@@ -197,11 +204,27 @@ def run(args) -> int:
     finally:
         progress.close()
     title = "series: " + ", ".join(dict.fromkeys(m.species.label for m in members)) + " at " + ", ".join(lv.text for lv in levels)
-    return _report(rows, title, write_series(rows, out, title, not args.no_plots))
+    written = write_series(rows, out, title, not args.no_plots)
+    from .report import write_page
+
+    written[0].append(write_page(out, title))
+    return _report(rows, title, written)
 
 
 def _slug(name: str) -> str:
     return re.sub(r"[^A-Za-z0-9._-]+", "-", name).strip("-") or "group"
+
+
+def _study_index(study, out, outs, path) -> None:
+    """The study file itself and the groups' order, for the report (written as each group is done)."""
+    import json
+
+    from ..export.io import atomic_write_bytes
+
+    with open(path, "rb") as fh:
+        atomic_write_bytes(os.path.join(out, "study.toml"), fh.read())
+    index = [{"name": g.name, "folder": os.path.relpath(outs[g.name], out)} for g in study.groups]
+    atomic_write_bytes(os.path.join(out, "groups.json"), json.dumps(index, indent=1).encode())
 
 
 def run_study(args) -> int:
@@ -229,7 +252,11 @@ def run_study(args) -> int:
             title = f"{study.title}: {g.name}" if study.title else g.name
             status = max(status, _report(rows, title, write_series(rows, outs[g.name], title, not args.no_plots)))
             print()
+            _study_index(study, out, outs, args.study)
     finally:
         progress.close()
+    from .report import write_page
+
+    print(f"  report: {write_page(out)}")
     print(f"study {study.path}: results in {out}, store {store_path}", file=sys.stdout)
     return status

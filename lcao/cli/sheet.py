@@ -125,6 +125,9 @@ def run(args) -> int:
         paths += save_figure(plot_thermo(sheet), os.path.join(out, "thermo"))
         if sheet.dissociation is not None:
             paths += save_figure(plot_dissociation(sheet), os.path.join(out, "dissociation"))
+    from .report import write_page
+
+    paths.append(write_page(out))
     r = sheet.record
 
     def f(key, fmt):

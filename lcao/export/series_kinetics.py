@@ -5,7 +5,6 @@ in ``kinetics-<level>/`` for a ladder, where the same molecule appears at every 
 from __future__ import annotations
 
 import datetime as _dt
-import re
 
 from ..errors import InputError
 
@@ -35,12 +34,9 @@ def member_sheet(row):
     return sheet, None
 
 
-def _slug(text: str) -> str:
-    return re.sub(r"[^A-Za-z0-9._-]+", "-", text).strip("-")
-
-
 def series_kinetics(rows, phase: str) -> tuple[dict, list[str]]:
     """{relative path: bytes} of the kinetics files, and a line per member left out with the reason."""
+    from ..series import level_slug
     from .kinetics_files import merge_entries, nasa7_text, species_yaml
 
     by_level: dict = {}
@@ -54,7 +50,7 @@ def series_kinetics(rows, phase: str) -> tuple[dict, list[str]]:
     files = {}
     date = _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds")
     for level, sheets in by_level.items():
-        prefix = "" if len(by_level) == 1 else f"kinetics-{_slug(level)}/"
+        prefix = "" if len(by_level) == 1 else f"kinetics-{level_slug(level)}/"
         entries = merge_entries(s.species_set for s in sheets)
         handoff = sheets[0].handoff
         versions = sheets[0].provenance["versions"]
