@@ -15,6 +15,10 @@ Cases (each measured against its baseline in the same run):
   multireference  a 30-point NEVPT2/cc-pVDZ curve of N2 (the whole protocol: probes skipped by the given
            multiplicity, both halves of the sweep, refinement, atoms, analysis) against a hand loop
            (CASSCF(10,8) from the previous distance's orbitals and NEVPT2 at each distance);
+  cluster  a 24-species HF/6-31G survey (every neutral diatomic of H, Li, B, C, N, O, F less the heaviest
+           pairs, and their default grids) on a Dask local cluster of 2 workers against 1 worker, and
+           against the local process pool on 2 workers; the per-task overhead of the engine in ms (an
+           empty task, round trip through the scheduler);
   slow     (with --slow) a 40-point N2 curve at HF/cc-pVTZ.
 Curve, series and shell cases take the best of ``--repeat`` runs of each side, the sides run in turn, and
 every tool run starts with the process caches cleared (``lcao.clear_caches``; each run starts its own
@@ -159,6 +163,57 @@ def run_series_case(rows, tmp, repeat: int = 1):
     rows.append(row("series rerun from the store", "first run", two[-1], "rerun", t3, 0, peak_mb()))
 
 
+def survey_members():
+    """24 neutral diatomics of H, Li, B, C, N, O, F at HF/6-31G (the 28 pairs less the four heaviest)."""
+    from lcao.levels import parse_level
+    from lcao.series import every_pair, members_from
+
+    species = every_pair(["H", "Li", "B", "C", "N", "O", "F"], (0, 0))[:24]
+    return members_from(species, [parse_level("HF/6-31G")])
+
+
+def run_cluster_case(rows, tmp, repeat: int = 1):
+    """The survey on a Dask local cluster (1 and 2 workers) and on the local pool (2 workers), in turn,
+    each with a new store; then the engine's round trip for an empty task."""
+    from lcao.execute.dask import DaskExecutor
+    from lcao.methods.cache import clear_caches
+    from lcao.series import run_series
+    from lcao.store import Store
+
+    members = survey_members()
+    runs = {"dask1": [], "dask2": [], "pool2": []}
+    for k in range(max(1, repeat)):
+        for name in runs:
+            clear_caches()
+            path = os.path.join(tmp, f"{name}-{k}.sqlite")
+            t0 = time.perf_counter()
+            with Store(path) as st:
+                if name == "pool2":
+                    run_series(members, st, workers=2)
+                else:
+                    with DaskExecutor(f"local:{name[-1]}") as ex:
+                        run_series(members, st, executor=ex)
+            runs[name].append(time.perf_counter() - t0)
+    d1, d2, p2 = (min(runs[n]) for n in ("dask1", "dask2", "pool2"))
+    rows.append(row("survey 24 x HF/6-31G on Dask", "1 Dask worker", d1, "2 Dask workers", d2, 0, peak_mb()))
+    rows.append(row("survey 24 x HF/6-31G, 2 workers", "local pool", p2, "Dask local", d2, 0, peak_mb()))
+    with DaskExecutor("local:2") as ex:
+        ex.submit(int).result()
+        n = 200
+        t0 = time.perf_counter()
+        for f in [ex.submit(int) for _ in range(n)]:
+            f.result()
+        per_task = (time.perf_counter() - t0) / n
+        t0 = time.perf_counter()
+        for _ in range(20):
+            ex.submit(int).result()
+        round_trip = (time.perf_counter() - t0) / 20
+    print(f"Dask per-task overhead: {1000 * per_task:.2f} ms a task in a batch of {n}, {1000 * round_trip:.1f} ms"
+          " for one task's round trip")
+    rows.append({"case": "Dask per-task overhead", "batch_ms_per_task": 1000 * per_task,
+                 "round_trip_ms": 1000 * round_trip})
+
+
 def run_shell_case(rows, tmp, repeat: int = 1):
     """Whole processes, both sides ``repeat`` times in turn (each tool run with a new store); the
     shortest of each counts, as for the curve cases."""
@@ -290,8 +345,8 @@ def run_multireference_case(rows):
 def main(argv=None):
     p = argparse.ArgumentParser(prog="python -m benchmarks", description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("--points", type=int, default=40)
-    p.add_argument("--cases", default="curve,series,shell,correlated,multireference",
-                   help="comma-separated: curve, series, shell, correlated, multireference, slow")
+    p.add_argument("--cases", default="curve,series,shell,correlated,multireference,cluster",
+                   help="comma-separated: curve, series, shell, correlated, multireference, cluster, slow")
     p.add_argument("--slow", action="store_true", help="also run the cc-pVTZ curve")
     p.add_argument("--repeat", type=int, default=3, help="runs of each curve, series and shell case; the shortest counts (default 3)")
     p.add_argument("--out", default=os.path.join(os.path.dirname(__file__), "results", "latest.json"))
@@ -321,6 +376,8 @@ def main(argv=None):
             run_series_case(rows, tmp, args.repeat)
         if "shell" in cases:
             run_shell_case(rows, tmp, args.repeat)
+        if "cluster" in cases:
+            run_cluster_case(rows, tmp, 1 if args.repeat < 2 else 2)
     if "correlated" in cases:
         run_correlated_case(rows)
     if "multireference" in cases:

@@ -26,6 +26,10 @@ class LevelError(InputError):
     """An unknown method or basis, or a basis that lacks an element."""
 
 
+class BasisCoverageError(LevelError):
+    """A basis set that has no functions for an element (a survey skips such members)."""
+
+
 class GridError(InputError):
     """Distances that cannot make a scan."""
 

@@ -288,4 +288,6 @@ def check_basis_covers(level: Level, symbols) -> None:
             except Exception:
                 shells = None
             if not shells:
-                raise LevelError(f"basis {name} has no functions for {sym}")
+                from .errors import BasisCoverageError
+
+                raise BasisCoverageError(f"basis {name} has no functions for {sym}")

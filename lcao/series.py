@@ -12,7 +12,7 @@ from __future__ import annotations
 import logging
 from dataclasses import dataclass, field
 
-from .errors import InputError, LcaoError, SpeciesError
+from .errors import BasisCoverageError, InputError, LcaoError, SpeciesError
 from .levels import Level
 from .species import Species, element_symbol, parse_species, atomic_number
 
@@ -59,6 +59,47 @@ def by_electron_count(n_electrons: int, elements, charges) -> list[Species]:
             f"no diatomic of {', '.join(pool)} has {n_electrons} electrons with a charge from {lo:+d} to {hi:+d}"
         )
     return out
+
+
+def every_pair(elements, charges) -> list[Species]:
+    """Every diatomic of the element pool, homonuclear and heteronuclear, with every charge in ``charges``
+    (inclusive) that leaves it electrons; neutral members first, then by charge and formula."""
+    pool = list(dict.fromkeys(element_symbol(atomic_number(s)) for s in elements))
+    if not pool:
+        raise InputError("the element pool is empty")
+    lo, hi = charges
+    if lo > hi:
+        raise InputError(f"charge range {lo}..{hi} is reversed")
+    out = []
+    for i, a in enumerate(pool):
+        for b in pool[i:]:
+            pair = tuple(sorted((a, b), key=atomic_number))
+            for q in range(lo, hi + 1):
+                try:
+                    out.append(Species(pair, q))
+                except SpeciesError:
+                    continue
+    out.sort(key=lambda s: (abs(s.charge), s.charge < 0, sum(s.z), s.label))
+    return out
+
+
+def parse_elements(text: str) -> list[str]:
+    """'H-Ar' (a range by atomic number), 'B,C,N,O,F', or both ('H-He,C-F')."""
+    out = []
+    for part in (t.strip() for t in str(text).split(",")):
+        if not part:
+            continue
+        if "-" in part:
+            a, b = (x.strip() for x in part.split("-", 1))
+            za, zb = atomic_number(a), atomic_number(b)
+            if za > zb:
+                raise InputError(f"element range {part} runs backwards")
+            out += [element_symbol(z) for z in range(za, zb + 1)]
+        else:
+            out.append(element_symbol(atomic_number(part)))
+    if not out:
+        raise InputError(f"no elements in {text!r}")
+    return list(dict.fromkeys(out))
 
 
 def parse_charge_range(text: str) -> tuple[int, int]:
@@ -175,6 +216,8 @@ async def run_member_async(session, member: Member) -> SeriesRow:
         res = await curve_async(session, sp, lv, grid, member.multiplicity, resolve_isotopes(sp.atoms),
                                 analyse_points=False, well_level=member.well_level, counterpoise=member.counterpoise,
                                 branch=member.branch)
+    except BasisCoverageError as exc:  # the basis lacks an element: a survey lists the member as skipped
+        return SeriesRow(sp.label, lv.text, "skipped", str(exc), handbook=hb, level_spec=lv)
     except LcaoError as exc:
         return SeriesRow(sp.label, lv.text, "failed", str(exc), handbook=hb)
     from .fit.verdict import BOUND, METASTABLE
@@ -295,12 +338,24 @@ def run_series(members, store=None, *, workers: int | None = None, progress=None
     sizes = [member_basis_size(m) for m in members]
     rows: list = [None] * len(members)
 
+    start = getattr(progress, "start_members", None)
+    if start is not None:
+        start(len(members))
+    done = getattr(progress, "member_done", None)
+
+    async def one(i):
+        row = await run_member_async(session_of[0], members[i])
+        rows[i] = row
+        log.info("series member %s %s: %s", row.species, row.level, row.status)
+        if done is not None:
+            done(row.species, row.level, row.status)
+
+    session_of: list = [None]
+
     async def batch(session, idx):
         idx = sorted(idx, key=lambda i: -expected_cost(members[i]))
-        got = await asyncio.gather(*(run_member_async(session, members[i]) for i in idx))
-        for i, row in zip(idx, got):
-            rows[i] = row
-            log.info("series member %s %s: %s", row.species, row.level, row.status)
+        session_of[0] = session
+        await asyncio.gather(*(one(i) for i in idx))
 
     small = [i for i, n in enumerate(sizes) if n < THREADED_FROM_NAO]
     large = [i for i, n in enumerate(sizes) if n >= THREADED_FROM_NAO]

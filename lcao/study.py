@@ -11,7 +11,9 @@ Top level::
     store = "store.sqlite"   # results store, relative to the study file (default: <out>/lcao-store.sqlite)
     [defaults]               # optional: levels, points, from, to, d_shells, well_level, all_electron,
                              # counterpoise, branch
-    [[group]]                # one or more: name and either species or electrons + elements (+ charges),
+    [cluster]                # optional: batch jobs through dask-jobqueue: kind (slurm, pbs), cores, memory,
+                             # walltime, queue, account, jobs, directives (extra job-script lines)
+    [[group]]                # one or more: name and either species, or elements (+ charges; + electrons),
                              # optionally levels, points, from, to, d_shells, well_level,
                              # all_electron, counterpoise, branch, multiplicity
 """
@@ -24,7 +26,9 @@ from dataclasses import dataclass
 
 from .errors import InputError
 
-TOP_KEYS = {"title": str, "out": str, "store": str, "defaults": dict, "group": list}
+TOP_KEYS = {"title": str, "out": str, "store": str, "defaults": dict, "group": list, "cluster": dict}
+CLUSTER_KEYS = {"kind": str, "cores": int, "memory": str, "walltime": str, "queue": str, "account": str, "jobs": int,
+                "directives": list}
 SETTING_KEYS = {"levels": list, "points": int, "from": (int, float), "to": (int, float), "d_shells": str,
                 "well_level": str, "all_electron": bool, "counterpoise": bool, "branch": str}
 GROUP_KEYS = {"name": str, "species": list, "electrons": int, "elements": list, "charges": (str, list), "multiplicity": dict, **SETTING_KEYS}
@@ -47,6 +51,7 @@ class Study:
     out: str
     store: str
     groups: tuple[Group, ...]
+    cluster: dict | None = None
 
 
 def _type_name(t) -> str:
@@ -69,7 +74,7 @@ def load_study(path) -> Study:
     """Read and validate a study file; raises StudyError naming the problem."""
     from .levels import parse_level
     from .scan.grid import range_grid
-    from .series import by_electron_count, members_from, parse_charge_range
+    from .series import by_electron_count, every_pair, members_from, parse_charge_range, parse_elements
     from .species import parse_species
 
     path = os.fspath(path)
@@ -132,16 +137,18 @@ def load_study(path) -> Study:
                 raise StudyError(f"{where}: give species or electrons, not both")
             if "species" in g:
                 species = [parse_species(t) for t in g["species"]]
-            elif "electrons" in g:
+            elif "electrons" in g or "elements" in g:
                 if "elements" not in g:
                     raise StudyError(f"{where}: electrons needs an elements list")
                 ch = g.get("charges", "0..0")
                 lo_hi = parse_charge_range(ch) if isinstance(ch, str) else tuple(ch)
                 if len(lo_hi) != 2:
                     raise StudyError(f"{where}: charges must be LOW..HIGH or [low, high]")
-                species = by_electron_count(g["electrons"], g["elements"], lo_hi)
+                pool = parse_elements(",".join(g["elements"]))
+                species = (by_electron_count(g["electrons"], pool, lo_hi) if "electrons" in g
+                           else every_pair(pool, lo_hi))  # a survey by rule: every pair of the pool
             else:
-                raise StudyError(f"{where}: needs species or electrons")
+                raise StudyError(f"{where}: needs species, or elements (with electrons for an isoelectronic series)")
             mults = g.get("multiplicity", {})
             members = []
             for sp in species:
@@ -158,4 +165,22 @@ def load_study(path) -> Study:
         except InputError as exc:
             raise StudyError(f"{where}: {exc}") from None
         groups.append(Group(name, tuple(members)))
-    return Study(path, data.get("title", ""), out, store, tuple(groups))
+    return Study(path, data.get("title", ""), out, store, tuple(groups), _cluster(data.get("cluster"), path))
+
+
+def _cluster(table: dict | None, path: str) -> dict | None:
+    """The [cluster] table, checked: kind slurm or pbs, cores, memory and walltime required."""
+    if table is None:
+        return None
+    where = f"{path} [cluster]"
+    _check_keys(table, CLUSTER_KEYS, where)
+    if table.get("kind") not in ("slurm", "pbs"):
+        raise StudyError(f"{where}: kind must be 'slurm' or 'pbs', got {table.get('kind')!r}")
+    for key in ("cores", "memory", "walltime"):
+        if key not in table:
+            raise StudyError(f"{where}: needs {key} (e.g. cores = 8, memory = \"16GB\", walltime = \"02:00:00\")")
+    if table["cores"] < 1 or table.get("jobs", 1) < 1:
+        raise StudyError(f"{where}: cores and jobs must be at least 1")
+    if not all(isinstance(d, str) for d in table.get("directives", [])):
+        raise StudyError(f"{where}: directives must be a list of text lines")
+    return dict(table)

@@ -18,11 +18,12 @@ if [ ! -x "$venv/bin/python" ]; then
   echo "creating $venv with $py" >&2
   "$py" -m venv "$venv"
 fi
-stamp="$venv/.lcao-installed"
+extras="${LCAO_EXTRAS:-test}"
+stamp="$venv/.lcao-installed-${extras//,/-}"
 if [ ! -f "$stamp" ] || [ "$root/pyproject.toml" -nt "$stamp" ]; then
   echo "installing lcao and its dependencies into $venv" >&2
   "$venv/bin/python" -m pip install --quiet --disable-pip-version-check --upgrade pip >&2 || true
-  "$venv/bin/python" -m pip install --quiet --disable-pip-version-check -e "$root[test]" >&2
+  "$venv/bin/python" -m pip install --quiet --disable-pip-version-check -e "$root[$extras]" >&2
   touch "$stamp"
 fi
 export PATH="$venv/bin:$PATH"

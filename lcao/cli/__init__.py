@@ -13,7 +13,7 @@ import sys
 
 from .. import __version__
 
-COMMANDS = ("curve", "orbitals", "series", "run", "sheet", "report")
+COMMANDS = ("curve", "orbitals", "series", "run", "sheet", "report", "cluster-script")
 
 
 class OneLineParser(argparse.ArgumentParser):
@@ -45,6 +45,10 @@ def build_parser() -> argparse.ArgumentParser:
         ("run", _series.RUN_HELP, _series.RUN_HELP, _series.add_run_arguments, _series.run_study),
         ("sheet", _sheet.HELP, _sheet.DESCRIPTION, _sheet.add_arguments, _sheet.run),
         ("report", _report.HELP, _report.DESCRIPTION, _report.add_arguments, _report.run),
+        ("cluster-script", "print the batch job script of a study's [cluster] table (nothing is submitted)",
+         "Print the job script that lcao run would submit for the study's [cluster] table through dask-jobqueue"
+         " (SLURM or PBS), so that it can be checked before spending an allocation.",
+         _series.add_script_arguments, _series.cluster_script),
     )
     for name, help_text, description, add_arguments, run in table:
         p = sub.add_parser(name, help=help_text, description=description)

@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import os
 import sys
+import time
 
 HELP = "scan the bond distance of a diatomic and write points.csv and curve.json"
 DESCRIPTION = (
@@ -194,9 +195,38 @@ class Progress:
         else:
             print(msg, file=sys.stderr)
 
+    def start_members(self, total: int) -> None:
+        """A survey: a second bar over its members (done, failed, left and the time still needed)."""
+        self.members = {"total": total, "done": 0, "failed": 0, "skipped": 0, "t0": time.monotonic()}
+        self.member_bar = None
+        if self.bar is not None and total > 1:
+            from tqdm import tqdm
+
+            self.member_bar = tqdm(total=total, desc="members", unit="member", file=sys.stderr, leave=False,
+                                   position=1)
+
+    def member_done(self, species: str, level: str, status: str) -> None:
+        m = getattr(self, "members", None)
+        if m is None:
+            return
+        m["done"] += 1
+        if status in ("failed", "skipped"):
+            m[status] += 1
+        left = m["total"] - m["done"]
+        text = f"done {m['done']}, failed {m['failed']}, skipped {m['skipped']}, left {left}"
+        if self.member_bar is not None:
+            self.member_bar.set_postfix_str(text, refresh=False)
+            self.member_bar.update(1)
+        elif self.enabled and m["total"] > 1:
+            rate = (time.monotonic() - m["t0"]) / m["done"]
+            eta = f"; about {_duration(rate * left)} left" if left else ""
+            print(f"lcao: {species} at {level}: {status} ({text}{eta})", file=sys.stderr)
+
     def close(self):
         if self.bar is not None:
             self.bar.close()
+        if getattr(self, "member_bar", None) is not None:
+            self.member_bar.close()
 
 
 def _duration(seconds: float) -> str:

@@ -30,9 +30,11 @@ def add_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("species", nargs="*", help="formulas (N2 CO CN- NO+ BF); or use --electrons")
     p.add_argument("--level", action="append", help="METHOD/BASIS; repeat for a ladder (default HF/6-31G)")
     add_level_modifiers(p)
-    rule = p.add_argument_group("members by electron count")
+    rule = p.add_argument_group("members by rule")
     rule.add_argument("--electrons", metavar="N", type=int, help="every diatomic of the element pool with N electrons")
-    rule.add_argument("--elements", metavar="LIST", help="element pool, comma-separated (e.g. B,C,N,O,F)")
+    rule.add_argument("--elements", metavar="LIST",
+                      help="element pool, comma-separated or as ranges (B,C,N,O,F or H-Ar); without --electrons every"
+                           " diatomic of the pool, homonuclear and heteronuclear, with every charge of --charges")
     rule.add_argument("--charges", metavar="LO..HI", default="0..0", help="charge range, e.g. -2..2 (default 0..0)")
     add_grid_options(p)
     add_store_options(p)
@@ -45,18 +47,29 @@ def add_workers_option(p) -> None:
     p.add_argument("--workers", type=int, metavar="N",
                    help="worker processes for the members' curves (default: the CPU count; 1 runs everything in"
                         " this process)")
+    p.add_argument("--cluster", metavar="WHERE",
+                   help="run the tasks on a Dask cluster: local:N (N worker processes here) or tcp://HOST:PORT (an"
+                        " existing scheduler); needs pip install 'lcao[cluster]'. The results store stays with"
+                        " this process")
 
 
-def _members_run(members, store_path, args, progress):
-    """Run the members on one executor; only this process writes the store."""
+def _members_run(members, store_path, args, progress, cluster=None):
+    """Run the members on one executor (a Dask cluster with --cluster or a study's [cluster] table); only
+    this process writes the store."""
     from ..errors import InputError
     from ..series import run_series
     from ..store import Store
 
     if args.workers is not None and args.workers < 1:
         raise InputError(f"--workers must be at least 1, got {args.workers}")
+    spec = args.cluster or cluster
     with Store(store_path, reuse=not args.recompute) as store:
-        return run_series(members, store, workers=args.workers, progress=progress)
+        if spec is None:
+            return run_series(members, store, workers=args.workers, progress=progress)
+        from ..execute.dask import DaskExecutor
+
+        with DaskExecutor(spec) as executor:
+            return run_series(members, store, progress=progress, executor=executor)
 
 
 def add_run_arguments(p: argparse.ArgumentParser) -> None:
@@ -65,6 +78,28 @@ def add_run_arguments(p: argparse.ArgumentParser) -> None:
     p.add_argument("--recompute", action="store_true", help="ignore stored points: compute afresh and replace them")
     p.add_argument("--no-plots", action="store_true", help="skip the figures")
     add_workers_option(p)
+
+
+def add_script_arguments(p: argparse.ArgumentParser) -> None:
+    p.add_argument("study", help="study file (TOML) with a [cluster] table")
+
+
+def cluster_script(args) -> int:
+    """Print the batch job script the study's [cluster] table would submit (nothing is submitted)."""
+    from ..errors import InputError
+    from ..execute.dask import jobqueue_cluster
+    from ..study import load_study
+
+    study = load_study(args.study)
+    if study.cluster is None:
+        raise InputError(f"{args.study} has no [cluster] table")
+    cluster = jobqueue_cluster(study.cluster)
+    try:
+        print(cluster.job_script())
+    finally:
+        cluster.close()
+    print(f"# {study.cluster.get('jobs', 1)} such job(s) would be submitted by lcao run {args.study}")
+    return 0
 
 
 def write_series(rows, out: str, title: str, plots: bool) -> tuple[list[str], list[str]]:
@@ -119,7 +154,7 @@ def table_lines(rows) -> list[str]:
 
     for r in rows:
         if r.status != "ok":
-            lines.append(f"{r.species:8s} {r.level:14s} {'':>4s} {'failed: ' + (r.reason or ''):s}")
+            lines.append(f"{r.species:8s} {r.level:14s} {'':>4s} {r.status + ': ' + (r.reason or ''):s}")
             continue
         v, h = member_values(r), r.handbook
         e = signed_errors(r, v)
@@ -140,7 +175,7 @@ def _report(rows, title, written) -> int:
     print(title)
     for line in table_lines(rows):
         print("  " + line)
-    failed = [r for r in rows if r.status != "ok"]
+    failed = [r for r in rows if r.status == "failed"]
     print("  (hb = handbook: Huber & Herzberg 1979 / NIST WebBook as shipped; err = computed - handbook)")
     from ..export.series_files import levels_of
     from ..pipeline import caution_for
@@ -167,9 +202,10 @@ def _member_level(args, text):
 def run(args) -> int:
     from ..errors import InputError
     from ..export.io import check_out_dir
-    from ..series import by_electron_count, members_from, parse_charge_range
+    from ..series import by_electron_count, every_pair, members_from, parse_charge_range, parse_elements
     from ..species import parse_species
 
+    _check_cluster(args)
     levels = [_member_level(args, t) for t in (args.level or ["HF/6-31G"])]
     if args.active_space is not None and all(lv.active_space is None for lv in levels):
         raise InputError("--active-space applies to CASSCF and NEVPT2, and no level is one of them")
@@ -179,7 +215,11 @@ def run(args) -> int:
             raise InputError("give species or --electrons, not both")
         if not args.elements:
             raise InputError("--electrons needs --elements, e.g. --elements B,C,N,O,F")
-        species = by_electron_count(args.electrons, [e.strip() for e in args.elements.split(",") if e.strip()], parse_charge_range(args.charges))
+        species = by_electron_count(args.electrons, parse_elements(args.elements), parse_charge_range(args.charges))
+    elif args.elements:  # a survey by rule: every diatomic of the pool with every charge of the range
+        if args.species:
+            raise InputError("give species or --elements, not both")
+        species = every_pair(parse_elements(args.elements), parse_charge_range(args.charges))
     elif args.species:
         species = [parse_species(t) for t in args.species]
     else:
@@ -211,6 +251,17 @@ def run(args) -> int:
     return _report(rows, title, written)
 
 
+def _check_cluster(args) -> None:
+    if args.cluster is not None:
+        from ..execute.dask import parse_cluster
+
+        parse_cluster(args.cluster)
+        if args.workers is not None:
+            from ..errors import InputError
+
+            raise InputError("give --workers or --cluster, not both (a cluster's workers are its own)")
+
+
 def _slug(name: str) -> str:
     return re.sub(r"[^A-Za-z0-9._-]+", "-", name).strip("-") or "group"
 
@@ -233,6 +284,7 @@ def run_study(args) -> int:
     from ..store import check_store_path
     from ..study import load_study
 
+    _check_cluster(args)
     study = load_study(args.study)
     store_path = args.store or study.store
     out = check_out_dir(study.out)
@@ -248,7 +300,7 @@ def run_study(args) -> int:
     try:
         os.makedirs(os.path.dirname(os.path.abspath(store_path)), exist_ok=True)
         for g in study.groups:  # each group's outputs are written as soon as it is done
-            rows = _members_run(g.members, store_path, args, progress)
+            rows = _members_run(g.members, store_path, args, progress, study.cluster)
             title = f"{study.title}: {g.name}" if study.title else g.name
             status = max(status, _report(rows, title, write_series(rows, outs[g.name], title, not args.no_plots)))
             print()

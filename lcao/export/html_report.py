@@ -178,13 +178,16 @@ def group_view(folder: str, name: str, data: ReportData) -> dict:
         data.levels.setdefault(r.get("level", ""), None)
         cells = [{"key": k, "raw": r.get(k, ""), "shown": _shown(r.get(k, ""), f), "text": f is None}
                  for k, _, f in SUMMARY_COLUMNS]
-        if r.get("status") == "failed":
-            cells[2] = {"key": "verdict", "raw": r.get("reason", ""), "shown": "failed: " + r.get("reason", ""), "text": True}
+        if r.get("status") in ("failed", "skipped"):
+            cells[2] = {"key": "verdict", "raw": r.get("reason", ""), "shown": f"{r['status']}: {r.get('reason', '')}",
+                        "text": True}
         table.append({"species": r["species"], "level": r["level"], "cells": cells})
         if r.get("handbook_source"):
             sources[f"{r['species']}: {r['handbook_source']} ({r.get('handbook_checked', '')})"] = None
         sub = member_folder(r["species"], r["level"])
         path = os.path.join(folder, sub)
+        if r.get("status") != "ok":  # a failed or skipped member has no folder; its reason is in the table
+            continue
         if not os.path.isdir(path):
             data.missing.append(f"{name}: the member folder {sub} is missing ({r['species']} at {r['level']})")
             continue

@@ -42,6 +42,8 @@ from .base import AtomResult, Capabilities, Method, PointResult, StatePlan, Targ
 #: the one branch a multiconfigurational curve follows
 BRANCH = "multireference"
 CONV_TOL = 1e-9
+#: macro iterations of the second attempt at a point that did not converge in PySCF's default 50
+RETRY_MACRO_CYCLES = 150
 #: smallest singular value of the overlap between a point's active orbitals and the previous point's
 #: (projected onto the new geometry) before the point counts as discontinuous
 OVERLAP_MIN = 0.9
@@ -446,6 +448,17 @@ def _is_pi_state(mol, mo_active, occupations) -> bool:
     return False
 
 
+def _kernel(mc, mo0) -> None:
+    """CASSCF from ``mo0``; where the macro iterations run out before convergence (stretched multiple bonds
+    and near-degenerate roots converge slowly), go on once from where it stopped, with more iterations and
+    smaller orbital steps."""
+    mc.kernel(mo0)
+    if not mc.converged:
+        mc.max_cycle_macro = RETRY_MACRO_CYCLES
+        mc.max_stepsize = 0.01
+        mc.kernel(mc.mo_coeff, ci0=mc.ci)
+
+
 def solve_point(mol, space: ActiveSpace, spin: int, start, r_bohr: float, atom: bool = False) -> PointResult:
     """CASSCF at one geometry from ``start`` (the previous point's orbitals and distance) or from an SCF
     solution; the continuity checks against the start (see the module docstring). Never raises for a
@@ -475,14 +488,14 @@ def solve_point(mol, space: ActiveSpace, spin: int, start, r_bohr: float, atom: 
             mf = sol.scf
             mo0 = initial_orbitals(mol, mf.mo_coeff, mf.mo_occ, mf.mo_energy, space)
             mc = _cas_object(mf, space, spin, None)
-        mc.kernel(mo0)
+        _kernel(mc, mo0)
         if not usable and not atom and space.n_orbitals > 1:
             act = mc.mo_coeff[:, space.n_core:space.n_core + space.n_orbitals]
             if _is_pi_state(mol, act, _active_occupations(mc, space, mc.ci)):
                 weights = (0.5, 0.5)
                 first = mc.mo_coeff
                 mc = _cas_object(mf, space, spin, weights)
-                mc.kernel(first)
+                _kernel(mc, first)
     except (np.linalg.LinAlgError, ValueError, RuntimeError) as exc:
         return PointResult(r_bohr, float("nan"), False, 0, reason=f"CASSCF raised {exc!r}")
     ci = mc.ci

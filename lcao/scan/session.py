@@ -103,7 +103,14 @@ class Session:
         task, and the rest of the run, to this process (with a warning)."""
         try:
             done = await asyncio.wrap_future(self.executor.submit(run_task, task))
-        except BrokenProcessPool:
+        except Exception as exc:
+            lost = getattr(self.executor, "is_lost_task", None)
+            if lost is not None and lost(exc):  # a cluster task whose workers kept dying: a failed calculation
+                from ..errors import CalculationError
+
+                raise CalculationError(f"the cluster lost this task: {exc}") from None
+            if not isinstance(exc, BrokenProcessPool):
+                raise
             if not isinstance(self.executor, SerialExecutor):
                 log.warning("a worker process ended unexpectedly; the rest of the run is computed in this process")
                 self.executor.terminate()

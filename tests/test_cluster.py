@@ -1,0 +1,145 @@
+"""Dask as the execution engine: the same numbers as a serial run, a worker killed mid-survey, the client
+killed mid-survey, and the batch job script of a SLURM study without a scheduler.
+
+External references: the serial run of the same members (an independent execution path: one process, no
+Dask) and the job script that dask-jobqueue itself writes.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import signal
+import sqlite3
+import subprocess
+import sys
+import threading
+import time
+
+import pytest
+
+pytest.importorskip("distributed")  # the cluster extra; scripts/test installs it, so CI runs these tests
+
+from helpers import ROOT, count_rows  # noqa: E402
+from lcao.cli import main  # noqa: E402
+from lcao.execute.dask import DaskExecutor  # noqa: E402
+from lcao.levels import parse_level  # noqa: E402
+from lcao.series import members_from, run_series  # noqa: E402
+from lcao.store import Store  # noqa: E402
+
+SIX = ["N2", "CO", "NO", "O2", "CN", "BF"]
+
+
+def stored(path, column: str = "energy") -> dict:
+    """Point key -> ``column`` of every point in a store."""
+    con = sqlite3.connect(path)
+    try:
+        rows = con.execute(f"SELECT species, multiplicity, level, sweep, r_key, {column} FROM points").fetchall()
+    finally:
+        con.close()
+    return {r[:5]: r[5] for r in rows}
+
+
+def computed_now(row) -> int:
+    return json.loads(row.files["curve.json"])["counts"]["computed_now"]
+
+
+def test_six_species_on_a_local_cluster_match_the_serial_run(tmp_path):
+    members = members_from(SIX, [parse_level("HF/6-31G")])
+    with Store(tmp_path / "serial.sqlite") as store:
+        serial = run_series(members, store, workers=1)
+    with Store(tmp_path / "dask.sqlite") as store, DaskExecutor("local:2") as ex:
+        assert ex.workers == 2
+        on_cluster = run_series(members, store, executor=ex)
+    a, b = stored(tmp_path / "serial.sqlite"), stored(tmp_path / "dask.sqlite")
+    assert a.keys() == b.keys() and len(a) > 6 * 20  # each point once (the store's key), the same points
+    for key, e in a.items():
+        if e is None:
+            assert b[key] is None
+        else:
+            assert b[key] == pytest.approx(e, abs=1e-8), key
+    for r1, r2 in zip(serial, on_cluster, strict=True):
+        assert (r1.species, r1.status) == (r2.species, r2.status)
+        if r1.fit is not None and r1.fit.local is not None:
+            assert r2.fit.local.re == pytest.approx(r1.fit.local.re, abs=1e-6)
+
+
+def test_a_worker_killed_mid_survey(tmp_path):
+    """The scheduler re-runs the dead worker's task elsewhere: the survey completes, and a rerun computes
+    nothing."""
+    members = members_from(SIX[:4], [parse_level("HF/STO-3G")])
+    path = tmp_path / "store.sqlite"
+    killed = []
+    with Store(path) as store, DaskExecutor("local:2") as ex:
+        victim = ex.worker_pids()[0]
+
+        def kill_when_started():
+            deadline = time.time() + 120
+            while count_rows(str(path)) < 15 and time.time() < deadline:
+                time.sleep(0.05)
+            os.kill(victim, signal.SIGKILL)
+            killed.append(victim)
+
+        t = threading.Thread(target=kill_when_started, daemon=True)
+        t.start()
+        rows = run_series(members, store, executor=ex)
+        t.join(timeout=5)
+    assert killed == [victim]
+    assert all(r.status == "ok" for r in rows), [(r.species, r.reason) for r in rows]
+    with Store(path) as store:
+        again = run_series(members, store, workers=1)
+    assert sum(computed_now(r) for r in again) == 0
+
+
+def test_a_client_killed_mid_survey_then_rerun(tmp_path):
+    """The client (and the local cluster it started) killed: a rerun computes only what the store lacks."""
+    args = [sys.executable, "-m", "lcao", "series", *SIX[:4], "--level", "HF/STO-3G", "--cluster", "local:2",
+            "--store", "store.sqlite", "--out", "out", "-q", "--no-plots"]
+    env = dict(os.environ, OMP_NUM_THREADS="1", PYTHONPATH=ROOT + os.pathsep + os.environ.get("PYTHONPATH", ""))
+    proc = subprocess.Popen(args, cwd=tmp_path, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+                            start_new_session=True)
+    path = tmp_path / "store.sqlite"
+    deadline = time.time() + 180
+    while count_rows(str(path)) < 20 and time.time() < deadline and proc.poll() is None:
+        time.sleep(0.05)
+    os.killpg(proc.pid, signal.SIGKILL)  # the client and every process it started
+    proc.wait(timeout=30)
+    before = stored(path, "created")
+    assert len(before) >= 20
+    members = members_from(SIX[:4], [parse_level("HF/STO-3G")])
+    with Store(path) as store:
+        rows = run_series(members, store, workers=1)
+    after = stored(path, "created")
+    assert all(r.status == "ok" for r in rows)
+    assert {k: after[k] for k in before} == before  # nothing committed before the kill was computed again
+    assert len(after) > len(before) and sum(computed_now(r) for r in rows) > 0  # the missing part was
+
+
+def test_slurm_job_script_without_a_scheduler(tmp_path, capsys):
+    study = tmp_path / "survey.toml"
+    study.write_text(
+        'title = "survey"\n'
+        '[cluster]\nkind = "slurm"\ncores = 8\nmemory = "16GB"\nwalltime = "02:30:00"\nqueue = "short"\n'
+        'account = "chem-42"\njobs = 3\ndirectives = ["--constraint=avx2"]\n'
+        '[[group]]\nname = "g"\nspecies = ["N2"]\n')
+    assert main(["cluster-script", str(study)]) == 0
+    script = capsys.readouterr().out
+    assert "#SBATCH" in script
+    assert "-n 1" in script and "--cpus-per-task=8" in script  # one job, eight cores
+    assert "--mem=15G" in script or "--mem=16G" in script  # dask-jobqueue rounds the memory down a little
+    assert "-t 02:30:00" in script and "-p short" in script and "-A chem-42" in script
+    assert "#SBATCH --constraint=avx2" in script
+    assert "distributed.cli.dask_worker" in script and "--nworkers 8" in script and "--nthreads 1" in script
+    assert "3 such job(s)" in script
+
+
+def test_cluster_option_errors(tmp_path, capsys):
+    assert main(["series", "N2", "--cluster", "local:zero", "--out", str(tmp_path / "o")]) == 2
+    assert "local:N" in capsys.readouterr().err
+    assert main(["series", "N2", "--cluster", "local:2", "--workers", "2", "--out", str(tmp_path / "o")]) == 2
+    assert not (tmp_path / "o").exists()
+    bad = tmp_path / "bad.toml"
+    bad.write_text('[cluster]\nkind = "lsf"\ncores = 1\nmemory = "1GB"\nwalltime = "00:10:00"\n'
+                   '[[group]]\nname = "g"\nspecies = ["N2"]\n')
+    assert main(["cluster-script", str(bad)]) == 2
+    assert "slurm' or 'pbs'" in capsys.readouterr().err
