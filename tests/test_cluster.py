@@ -143,3 +143,37 @@ def test_cluster_option_errors(tmp_path, capsys):
                    '[[group]]\nname = "g"\nspecies = ["N2"]\n')
     assert main(["cluster-script", str(bad)]) == 2
     assert "slurm' or 'pbs'" in capsys.readouterr().err
+
+
+def test_ctrl_c_cancels_the_cluster_and_keeps_what_was_committed(tmp_path):
+    args = [sys.executable, "-m", "lcao", "series", *SIX[:4], "--level", "HF/STO-3G", "--cluster", "local:2",
+            "--store", "store.sqlite", "--out", "out", "-q", "--no-plots"]
+    env = dict(os.environ, OMP_NUM_THREADS="1", PYTHONPATH=ROOT + os.pathsep + os.environ.get("PYTHONPATH", ""))
+    proc = subprocess.Popen(args, cwd=tmp_path, env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                            start_new_session=True)
+    path = tmp_path / "store.sqlite"
+    deadline = time.time() + 180
+    while count_rows(str(path)) < 15 and time.time() < deadline and proc.poll() is None:
+        time.sleep(0.05)
+    proc.send_signal(signal.SIGINT)
+    try:
+        _, err = proc.communicate(timeout=60)
+    finally:
+        if proc.poll() is None:
+            os.killpg(proc.pid, signal.SIGKILL)
+    assert proc.returncode == 130, err[-2000:]
+    assert "every finished point is saved" in err
+    time.sleep(2)
+    try:  # the local cluster the client started is gone with it
+        os.killpg(proc.pid, 0)
+        alive = True
+    except ProcessLookupError:
+        alive = False
+    if alive:
+        os.killpg(proc.pid, signal.SIGKILL)
+    assert not alive, "worker processes outlived the interrupted client"
+    before = stored(path, "created")
+    with Store(path) as store:
+        rows = run_series(members_from(SIX[:4], [parse_level("HF/STO-3G")]), store, workers=1)
+    assert all(r.status == "ok" for r in rows)
+    assert {k: v for k, v in stored(path, "created").items() if k in before} == before
