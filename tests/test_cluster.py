@@ -177,3 +177,15 @@ def test_ctrl_c_cancels_the_cluster_and_keeps_what_was_committed(tmp_path):
         rows = run_series(members_from(SIX[:4], [parse_level("HF/STO-3G")]), store, workers=1)
     assert all(r.status == "ok" for r in rows)
     assert {k: v for k, v in stored(path, "created").items() if k in before} == before
+
+
+def test_an_existing_scheduler_by_address(tmp_path):
+    """--cluster tcp://HOST:PORT: a scheduler started elsewhere (here a local cluster of one worker)."""
+    from distributed import LocalCluster
+
+    with LocalCluster(n_workers=1, threads_per_worker=1, processes=True, dashboard_address=None) as cluster:
+        code = main(["series", "H2", "--level", "HF/STO-3G", "--points", "12", "--cluster", cluster.scheduler_address,
+                     "--store", str(tmp_path / "s.sqlite"), "--out", str(tmp_path / "out"), "-q", "--no-plots"])
+    assert code == 0
+    doc = json.loads((tmp_path / "out" / "H2_HF-STO-3G" / "curve.json").read_text())
+    assert doc["execution"]["executor"] == "dask" and doc["execution"]["scheduler"].startswith("tcp://")
