@@ -228,3 +228,16 @@ def test_series_writes_kinetics_files_for_its_bound_members(tmp_path):
     ck2yaml.convert(None, thermo_file=str(tmp_path / "s" / "thermo-nasa7.txt"), out_name=str(tmp_path / "c.yaml"), quiet=True)
     assert {s.name for s in ct.Species.list_from_file(str(tmp_path / "c.yaml"))} == set(gas.species_names)
     assert "HF/STO-3G" in (tmp_path / "s" / "thermo-nasa7.txt").read_text()
+
+
+def test_nasa9_yaml_when_asked(tmp_path):
+    """--polynomial nasa9: the YAML carries NASA9 (Cantera evaluates it as lcao does); the fixed-column file
+    stays NASA7, the only form its layout holds."""
+    sheet = _sheet("O2", polynomial="nasa9")
+    write_outputs(sheet, tmp_path, sheet_writers(sheet))
+    gas = ct.Solution(str(tmp_path / "thermo-species.yaml"))
+    for name in ("O2", "O"):
+        sp = gas.species(name)
+        assert sp.input_data["thermo"]["model"] == "NASA9"
+        _compare(sp.thermo, sheet.handoff["nasa9"][name], f"NASA9 {name}")
+    assert {s.name for s in _converted(tmp_path).values()} == {"O2", "O"}
