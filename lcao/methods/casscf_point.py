@@ -76,8 +76,23 @@ def _kernel(mc, mo0) -> None:
 
 def solve_point(mol, space: ActiveSpace, spin: int, start, r_bohr: float, atom: bool = False) -> PointResult:
     """CASSCF at one geometry from ``start`` (the previous point's orbitals and distance) or from an SCF
-    solution; the continuity checks against the start (see the module docstring). Never raises for a
-    convergence failure."""
+    solution; the continuity checks against the start (see the module docstring). Where the start leads to
+    no convergence or to a discontinuous solution (a higher root), the point is solved again from an SCF
+    start and that solution is kept if it is continuous with the previous point and no higher. Never raises
+    for a convergence failure."""
+    res, prev_active = _attempt(mol, space, spin, start, r_bohr, atom)
+    if res.converged or prev_active is None or atom:
+        return res
+    fresh, _ = _attempt(mol, space, spin, None, r_bohr, atom, check=(prev_active, start))
+    if fresh.converged and (not math.isfinite(res.energy) or fresh.energy <= res.energy + 1e-8):
+        return replace(fresh, reason=None)
+    return res
+
+
+def _attempt(mol, space: ActiveSpace, spin: int, start, r_bohr: float, atom: bool, check=None):
+    """One CASSCF solution from ``start`` (or from an SCF start), checked for continuity against the
+    projected previous orbitals (those of ``start``, or ``check`` = (active orbitals, start) given);
+    returns (PointResult, the projected previous active orbitals or None)."""
     from pyscf import mcscf
 
     from .molecule import overlap
@@ -87,6 +102,8 @@ def solve_point(mol, space: ActiveSpace, spin: int, start, r_bohr: float, atom: 
     weights = None
     prev_active = None
     usable = bool(start) and start.get("mo") is not None and np.shape(start["mo"])[0] == mol.nao
+    if check is not None:
+        prev_active, start = check
     try:
         if usable:
             weights = tuple(np.asarray(start["weights"]).tolist()) if start.get("weights") is not None and np.size(start["weights"]) > 1 else None
@@ -99,7 +116,7 @@ def solve_point(mol, space: ActiveSpace, spin: int, start, r_bohr: float, atom: 
         else:
             sol = solve(mol, "RHF" if spin == 0 else "ROHF", None, follow_stability=False)
             if not sol.converged:
-                return PointResult(r_bohr, float("nan"), False, sol.cycles, reason="the SCF start did not converge")
+                return PointResult(r_bohr, float("nan"), False, sol.cycles, reason="the SCF start did not converge"), prev_active
             mf = sol.scf
             mo0 = initial_orbitals(mol, mf.mo_coeff, mf.mo_occ, mf.mo_energy, space)
             mc = _cas_object(mf, space, spin, None)
@@ -112,7 +129,7 @@ def solve_point(mol, space: ActiveSpace, spin: int, start, r_bohr: float, atom: 
                 mc = _cas_object(mf, space, spin, weights)
                 _kernel(mc, first)
     except (np.linalg.LinAlgError, ValueError, RuntimeError) as exc:
-        return PointResult(r_bohr, float("nan"), False, 0, reason=f"CASSCF raised {exc!r}")
+        return PointResult(r_bohr, float("nan"), False, 0, reason=f"CASSCF raised {exc!r}"), prev_active
     ci = mc.ci
     energy = float(mc.e_states[0]) if weights else float(mc.e_tot)
     ok = bool(mc.converged) and math.isfinite(energy)
@@ -136,7 +153,7 @@ def solve_point(mol, space: ActiveSpace, spin: int, start, r_bohr: float, atom: 
     warm = {"mo": np.asarray(mc.mo_coeff), "occ": occ, "e": e_orb, "ci": ci_arr, "r": np.array([r_bohr]),
             "weights": np.asarray(weights if weights else (1.0,))}
     return PointResult(r_bohr, energy, ok, 0, None, "none", "not checked", reason,
-                       {"reference": energy}, warm, None, None, (e_orb, np.asarray(mc.mo_coeff), occ))
+                       {"reference": energy}, warm, None, None, (e_orb, np.asarray(mc.mo_coeff), occ)), prev_active
 
 
 def nevpt2_energy(mol, space: ActiveSpace, spin: int, warm) -> tuple[float, float]:
