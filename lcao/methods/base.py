@@ -69,7 +69,8 @@ class StatePlan:
         secondary: the branch computed from the first unstable point outward and from the
             atoms inward (None: an instability is only reported).
         from_atoms: sweeps from the separated atoms inward beside the sweep from equilibrium (a method
-            whose atoms give no start for the molecule, such as an active-space one, has none).
+            whose atoms give no start for the molecule, such as an active-space one, starts that sweep
+            afresh at the longest distance: ``fragment_start`` returns an empty start).
         retry_flagged: a flagged point is computed again from its neighbour on the other side (the
             lower trusted one kept).
     """

@@ -17,11 +17,14 @@ degenerate pair) is averaged over its two components with equal weights, and the
 (Sigma+/Sigma-/Pi/Delta, g/u) is identified from the CI vector under the molecule's symmetry operations
 (:func:`state_term`).
 
-**Following.** Each point starts from the previous point's natural orbitals projected onto the new geometry
-(PySCF's ``project_init_guess``). A point whose active orbitals overlap the projected previous ones by less
-than :data:`OVERLAP_MIN` (an orbital rotated out of the active space), or whose natural occupations jump by
-more than :data:`OCCUPATION_JUMP` (a root flip), is flagged with the reason; the protocol retries it from its
-neighbour on the other side before giving up (:class:`lcao.methods.base.StatePlan` ``retry_flagged``).
+**Following.** The curve is swept outward and inward from equilibrium and inward from the longest distance
+(which starts afresh from an SCF solution there), and each distance keeps the lowest trusted energy. Each
+point starts from the previous point's natural orbitals projected onto the new geometry (PySCF's
+``project_init_guess``). A point whose active orbitals overlap the projected previous ones by less than
+:data:`OVERLAP_MIN` (an orbital rotated out of the active space), or whose natural occupations jump by more
+than :data:`OCCUPATION_JUMP` (a root flip), or that does not converge, is solved again from an SCF start and
+kept if that solution is continuous and no higher; otherwise it is flagged with the reason, and the protocol
+retries it from its neighbour on the other side (:class:`lcao.methods.base.StatePlan` ``retry_flagged``).
 
 **NEVPT2** is the strongly contracted second-order n-electron valence state perturbation theory of Angeli,
 Cimiraglia, Evangelisti, Leininger and Malrieu (J. Chem. Phys. 114, 10252 (2001)) on the CASSCF points of the
@@ -49,7 +52,7 @@ class CompleteActiveSpace(Method):
     takes_active_space = True
 
     def state_plan(self, level, multiplicity: int) -> StatePlan:
-        return StatePlan(BRANCH, {BRANCH: "CASSCF"}, from_atoms=False, retry_flagged=True)
+        return StatePlan(BRANCH, {BRANCH: "CASSCF"}, from_atoms=True, retry_flagged=True)
 
     def check(self, level, species, multiplicity) -> None:
         mult = species.lowest_multiplicity() if multiplicity is None else multiplicity

@@ -23,7 +23,7 @@ from dataclasses import dataclass, replace
 from ..atoms import fragment_choices, needed_states, separated_atoms
 from ..methods.base import Target
 from ..units import bohr_to_angstrom
-from . import assemble, plan as planning
+from . import assemble, plan as planning, retry
 from .grid import expected_bond_length_bohr
 from .session import Tally
 
@@ -192,12 +192,18 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
         await asyncio.gather(*running)
         names = list(dict.fromkeys(s.sweep for s in specs))
         if state.retry_flagged:
-            retried = await _retry_flagged(session, method, species, target, r_all, i0, record(names[0], primary),
+            retried = await retry.retry_flagged(session, method, species, target, r_all, i0, record(names[0], primary),
                                            found, tally)
             if retried is not None:
                 found.setdefault(retried.sweep, {})
                 names.append(retried.sweep)
         branches[primary] = assemble.flag_outliers(assemble.lowest([record(nm, primary) for nm in names], n))
+        if state.retry_flagged:
+            fresh = await retry.fresh_outliers(session, method, species, target, r_all, branches[primary], found, tally)
+            if fresh is not None:
+                found.setdefault(fresh.sweep, {})
+                names.append(fresh.sweep)
+                branches[primary] = assemble.flag_outliers(assemble.lowest([record(nm, primary) for nm in names], n))
 
     limit = separated_atoms(species, atoms)
     frag_limit = min((f.energy_hartree for f in frags), default=None)
@@ -245,7 +251,7 @@ async def symmetric_branch(session, method, species, target, r_all, i0, final, f
     from .tasks import SpatialCheckTask
 
     n = len(r_all)
-    items = [(i, _raw(found, p)) for i, p in enumerate(final) if p is not None and p.trusted]
+    items = [(i, retry.raw_of(found, p)) for i, p in enumerate(final) if p is not None and p.trusted]
     items = [(i, raw) for i, raw in items if raw is not None]
     if not items or method.symmetric_branch(target.level, final[items[0][0]].branch) is None:
         return None
@@ -278,32 +284,6 @@ async def symmetric_branch(session, method, species, target, r_all, i0, final, f
     return sp, pts, sweep
 
 
-async def _retry_flagged(session, method, species, target, r_all, i0, points, found, tally):
-    """Each point of the sweep from equilibrium that came back flagged, computed again from its neighbour
-    on the other side (the outer one for the outward half, the inner one for the inward half) where that
-    one is trusted; stored under ``<branch>/retry``. Returns the retry's spec (None where nothing needed it);
-    its points are in ``found``."""
-    todo = []
-    for i, p in enumerate(points):
-        if p is None or p.converged:
-            continue
-        j = i + 1 if i >= i0 else i - 1
-        if 0 <= j < len(points) and points[j] is not None and points[j].trusted:
-            raw = _raw(found, points[j])
-            if raw is not None:
-                todo.append((i, raw.warm))
-    if not todo:
-        return None
-    branch = points[todo[0][0]].branch
-    specs = [planning.SweepSpec(f"{branch}/retry", branch, tuple(r_all), (i,), warm) for i, warm in todo]
-    got = await asyncio.gather(*(session.chain(method, species, target, sp, tally) for sp in specs))
-    merged: dict = {}
-    for part in got:
-        merged.update(part)
-    found[specs[0].sweep] = merged
-    return specs[0]
-
-
 async def _instability_start(session, method, species, target, point, branch, r_bohr):
     """The warm start along the instability at the first unstable point: the one found when the point
     was computed in this run, else recomputed from its stored warm start (only when the secondary
@@ -320,14 +300,7 @@ async def _instability_start(session, method, species, target, point, branch, r_
 
 def raw_point(scan: Scan, point):
     """The computed :class:`lcao.methods.PointResult` behind a curve point."""
-    return _raw(scan.found, point)
-
-
-def _raw(found: dict, point):
-    for p in found.get(point.sweep, {}).values():
-        if abs(p.r_bohr - point.r_bohr) < 1e-9:
-            return p
-    return None
+    return retry.raw_of(scan.found, point)
 
 
 async def _refine(session, method, species, target, found, branches, well_branch, tally: Tally, final=None) -> tuple:
@@ -347,7 +320,7 @@ async def _refine(session, method, species, target, found, branches, well_branch
     except FitError:
         return ()
     nearest = min(good, key=lambda p: abs(p.r_bohr - lf.re))
-    raw = _raw(found, nearest)
+    raw = retry.raw_of(found, nearest)
 
     async def window(centre, start):
         specs = planning.refinement(nearest.branch, centre, start)
