@@ -7,25 +7,26 @@ Dask) and the job script that dask-jobqueue itself writes.
 
 from __future__ import annotations
 
+import importlib.util
 import json
 import os
 import signal
 import sqlite3
 import subprocess
 import sys
-import threading
 import time
 
 import pytest
 
-pytest.importorskip("distributed")  # the cluster extra; scripts/test installs it, so CI runs these tests
+from helpers import ROOT, count_rows
+from lcao.cli import main
+from lcao.levels import parse_level
+from lcao.series import members_from, run_series
+from lcao.store import Store
 
-from helpers import ROOT, count_rows  # noqa: E402
-from lcao.cli import main  # noqa: E402
-from lcao.execute.dask import DaskExecutor  # noqa: E402
-from lcao.levels import parse_level  # noqa: E402
-from lcao.series import members_from, run_series  # noqa: E402
-from lcao.store import Store  # noqa: E402
+# the cluster extra; scripts/test installs it, so CI runs these tests. Found, not imported: every Dask
+# client runs in a child process (tests/cluster_scenarios.py says why)
+pytestmark = pytest.mark.skipif(importlib.util.find_spec("distributed") is None, reason="needs lcao[cluster]")
 
 SIX = ["N2", "CO", "NO", "O2", "CN", "BF"]
 
@@ -44,13 +45,17 @@ def computed_now(row) -> int:
     return json.loads(row.files["curve.json"])["counts"]["computed_now"]
 
 
+def scenario(name, tmp_path) -> dict:
+    env = dict(os.environ, OMP_NUM_THREADS="1", PYTHONPATH=ROOT + os.pathsep + os.environ.get("PYTHONPATH", ""))
+    r = subprocess.run([sys.executable, os.path.join(ROOT, "tests", "cluster_scenarios.py"), name, str(tmp_path)],
+                       capture_output=True, text=True, env=env, timeout=900)
+    assert r.returncode == 0, r.stderr[-3000:]
+    return json.loads(r.stdout.strip().splitlines()[-1])
+
+
 def test_six_species_on_a_local_cluster_match_the_serial_run(tmp_path):
-    members = members_from(SIX, [parse_level("HF/6-31G")])
-    with Store(tmp_path / "serial.sqlite") as store:
-        serial = run_series(members, store, workers=1)
-    with Store(tmp_path / "dask.sqlite") as store, DaskExecutor("local:2") as ex:
-        assert ex.workers == 2
-        on_cluster = run_series(members, store, executor=ex)
+    got = scenario("same_numbers", tmp_path)
+    assert got["workers"] == 2
     a, b = stored(tmp_path / "serial.sqlite"), stored(tmp_path / "dask.sqlite")
     assert a.keys() == b.keys() and len(a) > 6 * 20  # each point once (the store's key), the same points
     for key, e in a.items():
@@ -58,37 +63,19 @@ def test_six_species_on_a_local_cluster_match_the_serial_run(tmp_path):
             assert b[key] is None
         else:
             assert b[key] == pytest.approx(e, abs=1e-8), key
-    for r1, r2 in zip(serial, on_cluster, strict=True):
-        assert (r1.species, r1.status) == (r2.species, r2.status)
-        if r1.fit is not None and r1.fit.local is not None:
-            assert r2.fit.local.re == pytest.approx(r1.fit.local.re, abs=1e-6)
+    for species, s1, s2, re1, re2 in got["rows"]:
+        assert s1 == s2, species
+        if re1 is not None:
+            assert re2 == pytest.approx(re1, abs=1e-6)
 
 
 def test_a_worker_killed_mid_survey(tmp_path):
     """The scheduler re-runs the dead worker's task elsewhere: the survey completes, and a rerun computes
     nothing."""
-    members = members_from(SIX[:4], [parse_level("HF/STO-3G")])
-    path = tmp_path / "store.sqlite"
-    killed = []
-    with Store(path) as store, DaskExecutor("local:2") as ex:
-        victim = ex.worker_pids()[0]
-
-        def kill_when_started():
-            deadline = time.time() + 120
-            while count_rows(str(path)) < 15 and time.time() < deadline:
-                time.sleep(0.05)
-            os.kill(victim, signal.SIGKILL)
-            killed.append(victim)
-
-        t = threading.Thread(target=kill_when_started, daemon=True)
-        t.start()
-        rows = run_series(members, store, executor=ex)
-        t.join(timeout=5)
-    assert killed == [victim]
-    assert all(r.status == "ok" for r in rows), [(r.species, r.reason) for r in rows]
-    with Store(path) as store:
-        again = run_series(members, store, workers=1)
-    assert sum(computed_now(r) for r in again) == 0
+    got = scenario("dead_worker", tmp_path)
+    assert got["killed"]
+    assert all(status == "ok" for _, status, _ in got["statuses"]), got["statuses"]
+    assert got["rerun_computed"] == 0
 
 
 def test_a_client_killed_mid_survey_then_rerun(tmp_path):
@@ -122,8 +109,10 @@ def test_slurm_job_script_without_a_scheduler(tmp_path, capsys):
         '[cluster]\nkind = "slurm"\ncores = 8\nmemory = "16GB"\nwalltime = "02:30:00"\nqueue = "short"\n'
         'account = "chem-42"\njobs = 3\ndirectives = ["--constraint=avx2"]\n'
         '[[group]]\nname = "g"\nspecies = ["N2"]\n')
-    assert main(["cluster-script", str(study)]) == 0
-    script = capsys.readouterr().out
+    r = subprocess.run([sys.executable, "-m", "lcao", "cluster-script", str(study)], capture_output=True, text=True,
+                       timeout=120, env=dict(os.environ, PYTHONPATH=ROOT + os.pathsep + os.environ.get("PYTHONPATH", "")))
+    assert r.returncode == 0, r.stderr
+    script = r.stdout
     assert "#SBATCH" in script
     assert "-n 1" in script and "--cpus-per-task=8" in script  # one job, eight cores
     assert "--mem=15G" in script or "--mem=16G" in script  # dask-jobqueue rounds the memory down a little
@@ -181,11 +170,6 @@ def test_ctrl_c_cancels_the_cluster_and_keeps_what_was_committed(tmp_path):
 
 def test_an_existing_scheduler_by_address(tmp_path):
     """--cluster tcp://HOST:PORT: a scheduler started elsewhere (here a local cluster of one worker)."""
-    from distributed import LocalCluster
-
-    with LocalCluster(n_workers=1, threads_per_worker=1, processes=True, dashboard_address=None) as cluster:
-        code = main(["series", "H2", "--level", "HF/STO-3G", "--points", "12", "--cluster", cluster.scheduler_address,
-                     "--store", str(tmp_path / "s.sqlite"), "--out", str(tmp_path / "out"), "-q", "--no-plots"])
-    assert code == 0
+    assert scenario("scheduler_address", tmp_path)["code"] == 0
     doc = json.loads((tmp_path / "out" / "H2_HF-STO-3G" / "curve.json").read_text())
     assert doc["execution"]["executor"] == "dask" and doc["execution"]["scheduler"].startswith("tcp://")

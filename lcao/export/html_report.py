@@ -100,6 +100,7 @@ def _pm(v, u, fmt, unit):
 
 
 def member_view(folder: str, name: str, data: ReportData, row: dict | None = None) -> dict:
+    """(A series member always has curve.svg; a curve run with --no-plots has none, and that is no gap.)"""
     """What the page shows of one member folder (its curve.json and figures)."""
     doc = _read_json(os.path.join(folder, "curve.json"))
     if doc is None:
@@ -149,7 +150,7 @@ def member_view(folder: str, name: str, data: ReportData, row: dict | None = Non
     if row and row.get("status") == "failed":
         notes.insert(0, f"failed: {row.get('reason')}")
     figures = [inline_svg(os.path.join(folder, f)) for f in FIGURES if os.path.exists(os.path.join(folder, f))]
-    if not any(os.path.exists(os.path.join(folder, f)) for f in FIGURES[:1]):
+    if row is not None and not os.path.exists(os.path.join(folder, FIGURES[0])):
         data.missing.append(f"{name}: curve.svg is missing")
     counts = doc.get("counts") or {}
     return {
