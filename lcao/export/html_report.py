@@ -100,8 +100,8 @@ def _pm(v, u, fmt, unit):
 
 
 def member_view(folder: str, name: str, data: ReportData, row: dict | None = None) -> dict:
-    """(A series member always has curve.svg; a curve run with --no-plots has none, and that is no gap.)"""
-    """What the page shows of one member folder (its curve.json and figures)."""
+    """What the page shows of one member folder (its curve.json and figures). A series member always has
+    curve.svg; a curve run with --no-plots has none, and that is no gap."""
     doc = _read_json(os.path.join(folder, "curve.json"))
     if doc is None:
         data.missing.append(f"{name}: curve.json is missing or unreadable")
