@@ -163,7 +163,9 @@ class SeriesRow:
         electronic_degeneracy: of the state at the minimum, from the orbitals or the CI vector (for the
             kinetics files); level_spec: the member's :class:`lcao.levels.Level`.
         files: the member's own files (name -> bytes: curve.json, points.csv, curve.svg, orbital-levels.svg),
-            written to its folder (:func:`member_folder`) beside the group's table.
+            written to its folder (:func:`member_folder`) beside the group's table; only when the run asks
+            for them (``run_series(..., member_files=True)``, as the CLI does). computed: points this run
+            computed (the rest came from the store).
     """
 
     species: str
@@ -188,6 +190,7 @@ class SeriesRow:
     electronic_degeneracy: int | None = None
     level_spec: object = None
     files: dict = field(default_factory=dict)
+    computed: int = 0
 
 
 def _handbook(species: Species) -> dict:
@@ -200,7 +203,7 @@ def _handbook(species: Species) -> dict:
     return {k: row.get(k) for k in keep}
 
 
-async def run_member_async(session, member: Member) -> SeriesRow:
+async def run_member_async(session, member: Member, files: bool = False) -> SeriesRow:
     """Curve, fit and orbitals at the minimum of one member on a session; failures become a row with
     the reason."""
     from .masses import resolve_isotopes
@@ -223,8 +226,8 @@ async def run_member_async(session, member: Member) -> SeriesRow:
     from .fit.verdict import BOUND, METASTABLE
     from .outcome import branches_differ
 
-    files = member_files(res)
-    common = dict(files=files, multiplicity=res.multiplicity, reference=res.scan.reference, points=len(res.points),
+    files = member_files(res) if files else None
+    common = dict(files=files or {}, computed=res.computed, multiplicity=res.multiplicity, reference=res.scan.reference, points=len(res.points),
                   trusted_points=len(res.trusted_points), limit_energy_hartree=res.limit_energy_hartree, handbook=hb,
                   verdict=res.verdict, branch=res.branch, spatial_broken=res.scan.spatial is not None,
                   spatial_in_well=branches_differ(res), level_spec=lv)
@@ -243,7 +246,8 @@ async def run_member_async(session, member: Member) -> SeriesRow:
         from .sheet import degeneracy_from_orbitals
 
         g_el = degeneracy_from_orbitals(a, res.multiplicity)[0]
-        files["orbital-levels.svg"] = _svg(orb, "levels")
+        if files is not None:
+            files["orbital-levels.svg"] = _svg(orb, "levels")
         levels = tuple(
             {"label": m.label, "kind": m.kind, "spin": m.spin, "energy_hartree": m.energy_hartree,
              "occupation": m.occupation, "formal_class": m.formal_class}
@@ -322,7 +326,8 @@ def member_basis_size(member: Member) -> int:
         return 0
 
 
-def run_series(members, store=None, *, workers: int | None = None, progress=None, executor=None) -> tuple[SeriesRow, ...]:
+def run_series(members, store=None, *, workers: int | None = None, progress=None, executor=None,
+               member_files: bool = False) -> tuple[SeriesRow, ...]:
     """Run every member (see :func:`run_member_async`); rows in member order.
 
     The members' curves run side by side on one executor (worker processes, dearest first). Members
@@ -344,7 +349,7 @@ def run_series(members, store=None, *, workers: int | None = None, progress=None
     done = getattr(progress, "member_done", None)
 
     async def one(i):
-        row = await run_member_async(session_of[0], members[i])
+        row = await run_member_async(session_of[0], members[i], member_files)
         rows[i] = row
         log.info("series member %s %s: %s", row.species, row.level, row.status)
         if done is not None:

@@ -65,11 +65,11 @@ def _members_run(members, store_path, args, progress, cluster=None):
     spec = args.cluster or cluster
     with Store(store_path, reuse=not args.recompute) as store:
         if spec is None:
-            return run_series(members, store, workers=args.workers, progress=progress)
+            return run_series(members, store, workers=args.workers, progress=progress, member_files=True)
         from ..execute.dask import DaskExecutor
 
         with DaskExecutor(spec) as executor:
-            return run_series(members, store, progress=progress, executor=executor)
+            return run_series(members, store, progress=progress, executor=executor, member_files=True)
 
 
 def add_run_arguments(p: argparse.ArgumentParser) -> None:
