@@ -36,13 +36,7 @@ async def retry_flagged(session, method, species, target, r_all, i0, points, fou
         return None
     branch = points[todo[0][0]].branch
     specs = [planning.SweepSpec(f"{branch}/retry", branch, tuple(r_all), (i,), warm) for i, warm in todo]
-    got = await asyncio.gather(*(session.chain(method, species, target, sp, tally) for sp in specs))
-    merged: dict = {}
-    for part in got:
-        merged.update(part)
-    found[specs[0].sweep] = merged
-    return specs[0]
-
+    return await _single_points(session, method, species, target, specs, found, tally)
 
 
 async def fresh_outliers(session, method, species, target, r_all, points, found, tally):
@@ -54,6 +48,11 @@ async def fresh_outliers(session, method, species, target, r_all, points, found,
         return None
     branch = points[todo[0]].branch
     specs = [planning.SweepSpec(f"{branch}/fresh", branch, tuple(r_all), (i,), None) for i in todo]
+    return await _single_points(session, method, species, target, specs, found, tally)
+
+
+async def _single_points(session, method, species, target, specs, found, tally):
+    """Run one-point chains of one sweep name side by side; their points go to ``found`` under that name."""
     got = await asyncio.gather(*(session.chain(method, species, target, sp, tally) for sp in specs))
     merged: dict = {}
     for part in got:
