@@ -19,7 +19,7 @@ import asyncio
 import math
 from dataclasses import replace
 
-from ..atoms import fragment_choices, needed_states, separated_atoms
+from ..atoms import needed_states
 from ..methods.base import Target
 from ..points import CurvePoint
 from . import assemble
@@ -87,17 +87,7 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
                 raw[i] = replace(src, energy=p.energy_hartree, components=p.components)
         found[name] = raw
     atoms = {k: combine_atom(atoms_x[k], atoms_y[k], x, y) for k in atoms_x}
-    limit = separated_atoms(species, atoms)
-    frags = fragment_choices(species, target.spin, atoms)
-    frag_limit = min((f.energy_hartree for f in frags), default=None)
-    notes = []
-    if "restricted" in branches and "unrestricted" in branches:
-        final, switch = assemble.switch_once(branches, n)
-        notes.append(switch)
-    else:
-        final = assemble.lowest_over_branches(branches, n)
-    notes += assemble.curve_notes(final, limit.energy_hartree, frag_limit, target.multiplicity,
-                                  method.capabilities.spin_square, any(a.spin > 0 for a in limit.atoms))
+    limit, frag_limit, final, notes = on_reference.correlated_final(species, target, method, atoms, branches, n)
     for t, s in ((tx, sx), (ty, sy)):
         notes += [f"{t.level.text}: {note}" for note in s.result.notes if "above the separated atoms" not in note]
     state = method.state_plan(target.level, target.multiplicity)

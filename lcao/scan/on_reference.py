@@ -65,17 +65,7 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
         sweeps[name] = listed
         branches[branch] = assemble.flag_outliers(listed)
     atoms = await atoms_task
-    limit = separated_atoms(species, atoms)
-    frags = fragment_choices(species, target.spin, atoms)
-    frag_limit = min((f.energy_hartree for f in frags), default=None)
-    notes = []
-    if "restricted" in branches and "unrestricted" in branches:
-        final, switch = assemble.switch_once(branches, n)
-        notes.append(switch)
-    else:
-        final = assemble.lowest_over_branches(branches, n)
-    notes += assemble.curve_notes(final, limit.energy_hartree, frag_limit, target.multiplicity,
-                                  method.capabilities.spin_square, any(a.spin > 0 for a in limit.atoms))
+    limit, frag_limit, final, notes = correlated_final(species, target, method, atoms, branches, n)
     notes += [f"reference ({ref_level.method}): {note}" for note in ref.result.notes if "above the separated atoms" not in note]
     result = assemble.ScanResult(
         tuple(final), {k: tuple(v) for k, v in branches.items()}, {k: tuple(v) for k, v in sweeps.items()},
@@ -132,10 +122,7 @@ async def refine_at(session, method, species, target, done, nearest, centre: flo
 
     async def window(centre_, start):
         specs = planning.refinement(nearest.branch, centre_, start)
-        chains = await asyncio.gather(*(session.chain(ref_method, species, ref_target, s, tally) for s in specs))
-        merged: dict = {}
-        for c in chains:
-            merged.update(c)
+        merged = await session.chains(ref_method, species, ref_target, specs, tally)
         name = specs[0].sweep
         jobs = [(name, nearest.branch, merged[i]) for i in sorted(merged) if merged[i].usable]
         got = await session.correlate(method, species, target, jobs, max(1, session.executor.workers), tally)
@@ -144,3 +131,20 @@ async def refine_at(session, method, species, target, done, nearest, centre: flo
         return assemble.flag_outliers([q for q in listed if q is not None]), merged
 
     return await protocol.moving_refinement(window, centre, ref_point.warm if ref_point is not None else None)
+
+
+def correlated_final(species, target, method, atoms, branches: dict, n: int):
+    """The separated-atom limits, the final curve of a correlated level (one switch from the restricted to
+    the unrestricted branch where both exist) and its notes: (limit, fragment limit, final, notes)."""
+    limit = separated_atoms(species, atoms)
+    frags = fragment_choices(species, target.spin, atoms)
+    frag_limit = min((f.energy_hartree for f in frags), default=None)
+    notes = []
+    if "restricted" in branches and "unrestricted" in branches:
+        final, switch = assemble.switch_once(branches, n)
+        notes.append(switch)
+    else:
+        final = assemble.lowest_over_branches(branches, n)
+    notes += assemble.curve_notes(final, limit.energy_hartree, frag_limit, target.multiplicity,
+                                  method.capabilities.spin_square, any(a.spin > 0 for a in limit.atoms))
+    return limit, frag_limit, final, notes

@@ -324,10 +324,7 @@ async def _refine(session, method, species, target, found, branches, well_branch
 
     async def window(centre, start):
         specs = planning.refinement(nearest.branch, centre, start)
-        got = await asyncio.gather(*(session.chain(method, species, target, s, tally) for s in specs))
-        merged: dict = {}
-        for pts_ in got:
-            merged.update(pts_)
+        merged = await session.chains(method, species, target, specs, tally)
         name = specs[0].sweep
         return assemble.flag_outliers(assemble.curve_points(merged, len(specs[0].r_all), nearest.branch, name)), merged
 

@@ -5,8 +5,6 @@ again from the method's own fresh start."""
 
 from __future__ import annotations
 
-import asyncio
-
 from . import plan as planning
 
 
@@ -53,9 +51,5 @@ async def fresh_outliers(session, method, species, target, r_all, points, found,
 
 async def _single_points(session, method, species, target, specs, found, tally):
     """Run one-point chains of one sweep name side by side; their points go to ``found`` under that name."""
-    got = await asyncio.gather(*(session.chain(method, species, target, sp, tally) for sp in specs))
-    merged: dict = {}
-    for part in got:
-        merged.update(part)
-    found[specs[0].sweep] = merged
+    found[specs[0].sweep] = await session.chains(method, species, target, specs, tally)
     return specs[0]

@@ -149,6 +149,14 @@ class Session:
         if point.orbitals is not None:
             self.kept.put(kept_key(species, multiplicity, level, sweep, point.r_bohr), point)
 
+    async def chains(self, method, species, target, specs, tally: Tally) -> dict:
+        """Run several chains of one sweep side by side; their points merged (index -> PointResult)."""
+        got = await asyncio.gather(*(self.chain(method, species, target, sp, tally) for sp in specs))
+        merged: dict = {}
+        for part in got:
+            merged.update(part)
+        return merged
+
     async def chain(self, method, species, target, spec: SweepSpec, tally: Tally) -> dict:
         """Run one sweep chain; returns index -> :class:`lcao.methods.PointResult` (stored or new, the
         seed included)."""
