@@ -157,3 +157,31 @@ def test_nitrogen_nevpt2_triple_zeta_dissociation_energy():
     # the basis and the active space; measured 9.54 eV when the issue was written)
     res = lcao.curve("N2", "NEVPT2/cc-pVTZ", multiplicity=1)
     assert res.fit.de * HARTREE_EV == pytest.approx(9.905, abs=0.45)
+
+
+def test_nevpt2_is_taken_on_the_casscf_root_itself():
+    # O2 3Sigma_g- stretched to 1.9034 A, where a CASCI from a default guess on the CASSCF orbitals can settle
+    # on another triplet root 0.017 Eh higher (measured). Reference: PySCF directly, CASSCF(8, (7,5)) from
+    # ROHF orbitals with the spin fixed, then strongly contracted NEVPT2 on that CASSCF object.
+    from pyscf import gto, mcscf, mrpt, scf
+
+    from lcao.levels import parse_level
+    from lcao.methods import method_named
+    from lcao.methods.base import Target
+
+    r = 1.9034
+    mol = gto.M(atom=f"O 0 0 0; O 0 0 {r}", basis="cc-pvdz", spin=2, verbose=0)
+    mc = mcscf.CASSCF(scf.ROHF(mol).run(), 8, (7, 5))
+    mc.conv_tol = 1e-10
+    mc.fix_spin_(ss=2)
+    mc.kernel()
+    e_cas, e_nevpt2 = mc.e_tot, mc.e_tot + mrpt.NEVPT(mc).kernel()
+
+    point = method_named("NEVPT2").point(Target(("O", "O"), 0, 3, parse_level("NEVPT2/cc-pVDZ")), r / BOHR,
+                                         "multireference", None)
+    assert point.converged
+    assert point.components["reference"] == pytest.approx(e_cas, abs=1e-6)
+    # NEVPT2 reads the four-body density, so it carries the CI vectors' convergence (1e-9 Eh in the CASSCF
+    # energy here, 1e-10 in the reference): within 5e-5 Eh (measured 1.8e-5), far below the 0.017 Eh of the
+    # other root
+    assert point.energy == pytest.approx(e_nevpt2, abs=5e-5)
