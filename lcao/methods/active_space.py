@@ -146,18 +146,17 @@ def initial_orbitals(mol, mo, occ, energies, space: ActiveSpace) -> np.ndarray:
 
 # --- the state ------------------------------------------------------------------------------------------
 
-def _operation_overlap(mol, operation, level: int = 4) -> np.ndarray:
-    """M[mu, nu] = integral of chi_mu(r) chi_nu(op r) over space (PySCF's integration grid): the AO
-    representation of a point operation op (an involution or a rotation), so that an orbital's image is
-    represented in the MO basis by C^T M C."""
+def _operation_overlaps(mol, operations, level: int = 4) -> list:
+    """For each point operation op (an involution or a rotation), M[mu, nu] = integral of chi_mu(r)
+    chi_nu(op r) over space (PySCF's integration grid, built once for all of them): the AO representation of
+    op, so that an orbital's image is represented in the MO basis by C^T M C."""
     from pyscf.dft import gen_grid, numint
 
     g = gen_grid.Grids(mol)
     g.level = level
     g.build(with_non0tab=False)
-    a = numint.eval_ao(mol, g.coords)
-    b = numint.eval_ao(mol, operation(g.coords))
-    return (a * g.weights[:, None]).T @ b
+    weighted = (numint.eval_ao(mol, g.coords) * g.weights[:, None]).T
+    return [weighted @ numint.eval_ao(mol, op(g.coords)) for op in operations]
 
 
 def _expectation(ci, norb, nelec, u) -> float:
@@ -184,13 +183,12 @@ def state_term(mol, mo_active, ci, nelecas, multiplicity: int) -> dict:
         "inversion": lambda c: np.column_stack([-c[:, 0], -c[:, 1], r - c[:, 2]]),
     }
     homonuclear = mol.atom_symbol(0) == mol.atom_symbol(1)
+    if not homonuclear:
+        del ops["inversion"]
     norb = mo_active.shape[1]
     got = {}
-    for name, op in ops.items():
-        if name == "inversion" and not homonuclear:
-            continue
-        u = mo_active.T @ _operation_overlap(mol, op) @ mo_active
-        got[name] = _expectation(ci, norb, nelecas, u)
+    for name, m in zip(ops, _operation_overlaps(mol, list(ops.values()))):
+        got[name] = _expectation(ci, norb, nelecas, mo_active.T @ m @ mo_active)
     rot = got["rotation_90"]
     lam = 0 if rot > 0.5 else (2 if rot < -0.5 else 1)
     text = f"{multiplicity}{LAMBDA_NAMES[lam]}"
