@@ -4,13 +4,16 @@ through dask-jobqueue (SLURM, PBS). Optional: ``pip install lcao[cluster]``.
 Tasks are the same plain values as everywhere (:mod:`lcao.scan.tasks`); each runs in a worker through
 :func:`run_in_worker`, which sets PySCF's and the BLAS libraries' threads and keeps PySCF's memory under the
 worker's limit before the task starts. Results come back to the client, which alone writes the store, so
-the workers need no shared disk. A worker that dies has its task re-run elsewhere by the scheduler; a task
+the workers need no shared disk (the workers of a local cluster share two-electron integrals through a
+folder of the executor's own in memory, as a local pool's do, since they share this machine). A worker that dies has its task re-run elsewhere by the scheduler; a task
 that fails for a reason of its own raises here and becomes a failed member in a series.
 """
 
 from __future__ import annotations
 
 import logging
+import shutil
+import tempfile
 
 from ..errors import InputError
 from .base import Executor
@@ -30,13 +33,19 @@ def _imports():
     return distributed
 
 
-def run_in_worker(fn, threads: int, *args):
+def run_in_worker(fn, threads: int, shared: str | None, *args):
     """Run a task in a Dask worker: threads and PySCF's memory limit first (cheap, and right for every task
-    wherever the scheduler sends it)."""
+    wherever the scheduler sends it), and on a local cluster the integrals shared with the other workers
+    through the folder ``shared`` (as in :mod:`lcao.execute.local`)."""
     import os
 
     from pyscf import lib
     from threadpoolctl import threadpool_limits
+
+    if shared is not None:
+        from ..methods.cache import caches
+
+        caches().integrals.share(shared if os.path.isdir(shared) else None)
 
     os.environ["OMP_NUM_THREADS"] = str(threads)
     lib.num_threads(threads)
@@ -101,6 +110,8 @@ class DaskExecutor(Executor):
         distributed = _imports()
         self.threads = int(threads)
         self._cluster = None
+        #: a folder of shared integrals (local clusters only: other workers need not share this disk)
+        self.shared = None
         if isinstance(spec, dict):
             self._cluster = jobqueue_cluster(spec)
             self._cluster.scale(jobs=int(spec.get("jobs", 1)))
@@ -108,6 +119,10 @@ class DaskExecutor(Executor):
         else:
             how, value = parse_cluster(spec)
             if how == "local":
+                # workers on this machine share two-electron integrals through a folder, as a local pool's do
+                from .local import _memory_folder
+
+                self.shared = tempfile.mkdtemp(prefix="lcao-dask-", dir=_memory_folder())
                 self._cluster = distributed.LocalCluster(n_workers=value, threads_per_worker=1, processes=True,
                                                          dashboard_address=None)
                 self.address = spec
@@ -122,7 +137,7 @@ class DaskExecutor(Executor):
         self._killed = distributed.KilledWorker
 
     def submit(self, fn, /, *args, **kwargs):
-        return self._pool.submit(run_in_worker, fn, self.threads, *args, **kwargs)
+        return self._pool.submit(run_in_worker, fn, self.threads, self.shared, *args, **kwargs)
 
     def is_lost_task(self, exc: BaseException) -> bool:
         """Whether an exception says the task's workers kept dying (the task, not lcao, failed)."""
@@ -141,6 +156,8 @@ class DaskExecutor(Executor):
             self._client.close()
             if self._cluster is not None:
                 self._cluster.close()
+            if self.shared is not None:
+                shutil.rmtree(self.shared, ignore_errors=True)
 
     def terminate(self) -> None:
         """Cancel every future of this run and close the client (and a cluster it started)."""
