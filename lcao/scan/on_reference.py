@@ -20,6 +20,74 @@ from ..methods.base import Target
 from ..points import CurvePoint
 from . import assemble, plan as planning
 from .session import Tally
+from .tasks import CorrelationTask
+
+
+#: points per task of the early correlation (small, so that a reference chain's next piece waits little)
+EARLY_POINTS_PER_TASK = 2
+
+
+class EarlyCorrelation:
+    """This level's energies on the reference points of the sweeps from equilibrium, started as each piece
+    of those sweeps is committed, on the workers that the reference's sequential chains leave idle (one
+    worker fewer than the executor has, so that a chain never waits for more than a small task). At the
+    correlation stage, a job whose reference point is one of these takes the result already under way
+    (:meth:`take`); the rest are cancelled (:meth:`drop_rest`). Nothing here is stored before the final
+    reference curve has chosen its points, so the store never holds a level's energy on a reference point
+    the curve did not keep."""
+
+    def __init__(self, session, method, species, target: Target, ref_level, tally: Tally):
+        self.session, self.method, self.species, self.target, self.tally = session, method, species, target, tally
+        self.ref_key = ref_level.key()
+        self.pending: dict = {}  # (r_bohr rounded, reference energy) -> (future, index in its task)
+        self.futures: list = []
+        self.taken: set = set()
+        self.gate = asyncio.Semaphore(max(1, session.executor.workers - 1))
+
+    def __call__(self, species, multiplicity, level, sweep, branch, points) -> None:
+        if (species.label != self.species.label or multiplicity != self.target.multiplicity
+                or level.key() != self.ref_key or not sweep.endswith("from-equilibrium")):
+            return
+        pts = [p for p in points if p.usable]
+        size = min(EARLY_POINTS_PER_TASK, self.session.points_per_task(self.method, self.target, self.target.level.key()))
+        for k in range(0, len(pts), size):
+            chunk = pts[k:k + size]
+            fut = asyncio.ensure_future(self._run(CorrelationTask(self.method, self.target,
+                                                                  tuple((p, branch) for p in chunk))))
+            self.futures.append(fut)
+            for j, p in enumerate(chunk):
+                self.pending[(round(p.r_bohr, 8), p.energy)] = (fut, j)
+
+    async def _run(self, task):
+        async with self.gate:  # the reference's chains keep a worker
+            return await self.session.run(task)
+
+    def open(self) -> None:
+        """The reference curve is done: the tasks still waiting may take every worker."""
+        for _ in range(self.session.executor.workers - max(1, self.session.executor.workers - 1)):
+            self.gate.release()
+
+    def take(self, ref):
+        """An awaitable of this level's point on the reference point ``ref``, or None where none was started."""
+        entry = self.pending.pop((round(ref.r_bohr, 8), ref.energy), None)
+        if entry is None:
+            return None
+        fut, j = entry
+        self.taken.add(id(fut))
+
+        async def value():
+            done = await fut
+            self.tally.pids.add(done.pid)
+            return done.value[j]
+        return value()
+
+    def drop_rest(self) -> None:
+        """Cancel the tasks none of whose points a job took (a task already running on a worker finishes
+        there and its result is dropped)."""
+        for fut in self.futures:
+            if id(fut) not in self.taken:
+                fut.cancel()
+            fut.add_done_callback(lambda f: f.cancelled() or f.exception())
 
 
 def _placeholder(ref_point: CurvePoint, sweep: str) -> CurvePoint:
@@ -39,8 +107,16 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
     ref_tally = Tally()
     states = needed_states(species, target.spin)
     atoms_task = asyncio.ensure_future(session.atoms(method, target.level, states))
-    ref, _, _ = await protocol.scan(session, ref_method, species, ref_target, r_all, ref_tally,
-                                    refine_points=False, analyse=False, spatial=False)
+    early = EarlyCorrelation(session, method, species, target, ref_level, tally) if session.executor.workers > 1 else None
+    if early is not None:
+        session.watchers.append(early)
+    try:
+        ref, _, _ = await protocol.scan(session, ref_method, species, ref_target, r_all, ref_tally,
+                                        refine_points=False, analyse=False, spatial=False)
+    finally:
+        if early is not None:
+            session.watchers.remove(early)
+            early.open()
     tally.merge(ref_tally)
     n = len(r_all)
     state = method.state_plan(target.level, target.multiplicity)
@@ -49,7 +125,12 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
         for p in pts:
             if p is not None and p.trusted:
                 jobs.append((f"{branch}/correlated", branch, protocol.raw_point(ref, p)))
-    got = await session.correlate(method, species, target, jobs, parts, tally)
+    try:
+        got = await session.correlate(method, species, target, jobs, parts, tally,
+                                      early=early.take if early is not None else None)
+    finally:
+        if early is not None:
+            early.drop_rest()
     found: dict = {}
     branches: dict = {}
     sweeps: dict = {}
@@ -63,7 +144,7 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
         listed = assemble.curve_points(by_index, n, branch, name)
         listed = [q if q is not None or p is None else _placeholder(p, name) for q, p in zip(listed, pts)]
         sweeps[name] = listed
-        branches[branch] = assemble.flag_outliers(listed)
+        branches[branch] = assemble.flag_outliers(listed, state.outlier_tol_hartree)
     atoms = await atoms_task
     limit, frag_limit, final, notes = correlated_final(species, target, method, atoms, branches, n)
     notes += [f"reference ({ref_level.method}): {note}" for note in ref.result.notes if "above the separated atoms" not in note]
@@ -73,10 +154,11 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
         tally.reused, tuple(notes), dict(state.reference), ref.result,
     )
     done = protocol.Scan(result, found, state, target)
-    refined = ()
-    if refine_points:
-        refined = await refine(session, method, species, target, done, tally)
+    # the refinement and the analysis along the curve side by side: each fills the workers the other leaves
+    # idle (a refinement chain is sequential)
+    refining = asyncio.ensure_future(refine(session, method, species, target, done, tally)) if refine_points else None
     summaries = await protocol.analyse_along(session, method, done, parts) if analyse else ()
+    refined = await refining if refining is not None else ()
     return done, refined, summaries
 
 

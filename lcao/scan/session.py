@@ -95,6 +95,9 @@ class Session:
         self._rate: dict = {}
         #: points computed in this run with their orbitals (never stored), for the analysis
         self.kept = BoundedCache(KEPT_BYTES, _orbital_bytes)
+        #: callables(species, multiplicity, level, sweep, branch, points) told of each piece of a chain
+        #: as it is committed (:class:`lcao.scan.on_reference.EarlyCorrelation` listens)
+        self.watchers: list = []
 
     # tasks ---------------------------------------------------------------------------------
 
@@ -196,18 +199,20 @@ class Session:
             done = await self.run(task)
             tally.pids.add(done.pid)
             outcome = done.value
-            n_new = 0
+            new = []
             if outcome.seed is not None:
                 got.setdefault(spec.seed, outcome.seed)
                 self.commit_point(species, mult, level, spec.sweep, outcome.seed, tally)
-                n_new += 1
+                new.append(outcome.seed)
             for i, p in zip(part, outcome.points):
                 if p is not None:
                     got[i] = p
                     self.commit_point(species, mult, level, spec.sweep, p, tally)
-                    n_new += 1
-            if n_new:
-                self._measured(level, done.seconds / n_new)
+                    new.append(p)
+            if new:
+                self._measured(level, done.seconds / len(new))
+                for watch in list(self.watchers):
+                    watch(species, mult, level, spec.sweep, spec.branch, new)
             history = outcome.history
             self._tick(spec.sweep, len(part))
         return got
@@ -242,23 +247,37 @@ class Session:
             self._tick("probe", 1)
         return p, q
 
-    async def correlate(self, method, species, target, jobs, parts: int, tally: Tally) -> dict:
+    async def correlate(self, method, species, target, jobs, parts: int, tally: Tally, early=None) -> dict:
         """``method``'s points on reference points: ``jobs`` are (sweep, branch, reference point); returns
-        (sweep, r_bohr rounded to 1e-8) -> PointResult, from the store or computed in about ``parts``
-        independent tasks (more where the points are dear), each committed as it comes back."""
+        (sweep, r_bohr rounded to 1e-8) -> PointResult, from the store, from ``early`` (a callable(reference
+        point) giving an awaitable of the point already under way on that very reference point, or None) or
+        computed in about ``parts`` independent tasks (more where the points are dear), each committed as
+        it comes back."""
         from .tasks import CorrelationTask
 
         level, mult = target.level, target.multiplicity
         got: dict = {}
         todo = []
+        started = []
         for sweep, branch, ref in jobs:
             p = self.stored_point(species, mult, level, sweep, ref.r_bohr)
             if p is not None:
                 got[(sweep, round(ref.r_bohr, 8))] = p
                 tally.count(point_key(species, mult, level, sweep, ref.r_bohr), False)
+            elif early is not None and (pending := early(ref)) is not None:
+                started.append((sweep, pending))
             else:
                 todo.append((sweep, branch, ref))
+
+        async def take(sweep, pending):
+            p = await pending
+            got[(sweep, round(p.r_bohr, 8))] = p
+            self.commit_point(species, mult, level, sweep, p, tally)
+            self._tick("correlation", 1)
+
+        taking = [take(sweep, pending) for sweep, pending in started]
         if not todo:
+            await asyncio.gather(*taking)
             return got
         size = max(1, min(self.points_per_task(method, target, level.key()), -(-len(todo) // max(1, parts))))
         chunks = [todo[k:k + size] for k in range(0, len(todo), size)]
@@ -272,7 +291,7 @@ class Session:
                 self.commit_point(species, mult, level, sweep, p, tally)
             self._tick("correlation", len(chunk))
 
-        await asyncio.gather(*(one(c) for c in chunks))
+        await asyncio.gather(*(one(c) for c in chunks), *taking)
         return got
 
     # atoms -----------------------------------------------------------------------------------
