@@ -146,7 +146,10 @@ def test_bad_active_spaces_are_refused(tmp_path, capsys, args, fragment):
 def test_hard_curves_converge_everywhere(species, mult):
     res = lcao.curve(species, "NEVPT2/cc-pVDZ", range_grid(0.8, 4.0, 30), multiplicity=mult)
     flagged = [(p.r_angstrom, p.flag) for p in res.points if not p.trusted]
-    assert not flagged  # every point converged, none jumps off the smooth curve through its neighbours
+    # every point converged, and none lies off the smooth curve through its neighbours by more than 1 mEh
+    # plus what the grid's resolution allows there (lcao.points.outlier_reasons with the multiconfigurational
+    # levels' tolerance; Hartree-Fock curves allow 5 mEh)
+    assert not flagged
     assert res.verdict.kind == "bound"  # F2 too, unlike at HF/6-31G (tests/test_verdicts.py)
 
 

@@ -20,6 +20,10 @@ RETRY_MACRO_CYCLES = 150
 OVERLAP_MIN = 0.9
 #: largest change of a natural occupation between neighbouring points before it counts as a jump
 OCCUPATION_JUMP = 0.5
+#: a point of a CASSCF or NEVPT2 curve lying this far above the smooth curve through its neighbours is
+#: flagged (hartree; Hartree-Fock allows 5 mEh): near a crossing of states several CASSCF solutions lie a
+#: few mEh apart, and the higher one is a visible kink (0.1 eV) that the fresh start usually removes
+OUTLIER_TOL_HARTREE = 1e-3
 #: two pi natural orbitals of one kind whose occupations differ by more than this: a Pi state
 PI_SPLIT = 0.5
 #: the basis whose valence functions measure how valence-like an orbital is

@@ -57,6 +57,14 @@ class Capabilities:
     components: tuple[str, ...]
 
 
+from ..points import OUTLIER_TOL_HARTREE
+
+#: how far above the separated atoms the sweep from equilibrium may end before a method with
+#: ``StatePlan.atoms_sweep_if_needed`` sweeps from the atoms too (hartree; 1 mEh, the size-consistency
+#: margin of the curve notes)
+ATOMS_GAP_HARTREE = 1e-3
+
+
 @dataclass(frozen=True)
 class StatePlan:
     """How a method follows one state (multiplicity) at one level.
@@ -73,6 +81,12 @@ class StatePlan:
             afresh at the longest distance: ``fragment_start`` returns an empty start).
         retry_flagged: a flagged point is computed again from its neighbour on the other side (the
             lower trusted one kept).
+        atoms_sweep_if_needed: the sweep from the atoms runs only where the sweep from equilibrium leaves
+            an untrusted point or ends more than :data:`ATOMS_GAP_HARTREE` above the separated atoms (a
+            higher root followed outward), not beside it.
+        outlier_tol_hartree: how far above the smooth curve through its neighbours a point may lie before
+            it is flagged (:func:`lcao.points.outlier_reasons`); a method whose solutions of one state lie
+            closer together than Hartree-Fock's may ask for less.
     """
 
     primary: str
@@ -81,6 +95,8 @@ class StatePlan:
     secondary: str | None = None
     from_atoms: bool = True
     retry_flagged: bool = False
+    atoms_sweep_if_needed: bool = False
+    outlier_tol_hartree: float = OUTLIER_TOL_HARTREE
 
     @property
     def branches(self) -> tuple[str, ...]:

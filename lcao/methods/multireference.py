@@ -17,8 +17,10 @@ degenerate pair) is averaged over its two components with equal weights, and the
 (Sigma+/Sigma-/Pi/Delta, g/u) is identified from the CI vector under the molecule's symmetry operations
 (:func:`state_term`).
 
-**Following.** The curve is swept outward and inward from equilibrium and inward from the longest distance
-(which starts afresh from an SCF solution there), and each distance keeps the lowest trusted energy. Each
+**Following.** The curve is swept outward and inward from equilibrium; where that sweep leaves a point
+untrusted or ends more than 1 mEh above the separated atoms (a higher root followed outward), it is also swept
+inward from the longest distance (which starts afresh from an SCF solution there), and each distance keeps the
+lowest trusted energy. Each
 point starts from the previous point's natural orbitals projected onto the new geometry (PySCF's
 ``project_init_guess``). A point whose active orbitals overlap the projected previous ones by less than
 :data:`OVERLAP_MIN` (an orbital rotated out of the active space), or whose natural occupations jump by more
@@ -37,7 +39,7 @@ from __future__ import annotations
 from dataclasses import replace
 
 from ..errors import LevelError
-from .active_space import BRANCH, CONV_TOL, SECONDS_CC_PVDZ, ActiveSpace, active_space
+from .active_space import BRANCH, OUTLIER_TOL_HARTREE, CONV_TOL, SECONDS_CC_PVDZ, ActiveSpace, active_space
 from .base import AtomResult, Capabilities, Method, PointResult, StatePlan, Target
 from .casscf_point import analyse_natural, nevpt2_energy, solve_point
 
@@ -52,7 +54,8 @@ class CompleteActiveSpace(Method):
     takes_active_space = True
 
     def state_plan(self, level, multiplicity: int) -> StatePlan:
-        return StatePlan(BRANCH, {BRANCH: "CASSCF"}, from_atoms=True, retry_flagged=True)
+        return StatePlan(BRANCH, {BRANCH: "CASSCF"}, from_atoms=True, retry_flagged=True, atoms_sweep_if_needed=True,
+                         outlier_tol_hartree=OUTLIER_TOL_HARTREE)
 
     def check(self, level, species, multiplicity) -> None:
         mult = species.lowest_multiplicity() if multiplicity is None else multiplicity

@@ -13,7 +13,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
 
-from ..points import CurvePoint, outlier_reasons
+from ..points import OUTLIER_TOL_HARTREE, CurvePoint, outlier_reasons
 from ..units import bohr_to_angstrom
 
 #: unrestricted energies must lie this far below restricted ones to count as a separate branch
@@ -179,12 +179,12 @@ def lowest(candidates, n: int) -> list:
     return out
 
 
-def flag_outliers(points) -> list:
+def flag_outliers(points, tol: float = OUTLIER_TOL_HARTREE) -> list:
     idx = [i for i, p in enumerate(points) if p is not None]
     if len(idx) < 3:
         return list(points)
     reasons = outlier_reasons([points[i].r_bohr for i in idx], [points[i].energy_hartree for i in idx],
-                              [points[i].trusted for i in idx])
+                              [points[i].trusted for i in idx], tol)
     out = list(points)
     for j, i in enumerate(idx):
         if reasons[j]:

@@ -184,26 +184,37 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
         running = [start(s) for s in specs]
         atoms = await atoms_task
         frags = fragment_choices(species, target.spin, atoms)
-        if state.from_atoms:
+
+        def from_atoms():
             more = [planning.from_atoms(primary, r_all, f.label, method.fragment_start(target, f.a, f.b, f.flip))
                     for f in frags]
-            specs += more
-            running += [start(s) for s in more]
+            specs.extend(more)
+            return [start(s) for s in more]
+
+        if state.from_atoms and not state.atoms_sweep_if_needed:
+            running += from_atoms()
         await asyncio.gather(*running)
+        if state.from_atoms and state.atoms_sweep_if_needed and _atoms_sweep_needed(
+                record(specs[0].sweep, primary), separated_atoms(species, atoms).energy_hartree,
+                state.outlier_tol_hartree):
+            await asyncio.gather(*from_atoms())
         names = list(dict.fromkeys(s.sweep for s in specs))
         if state.retry_flagged:
+            so_far = assemble.lowest([record(nm, primary) for nm in names], n)
             retried = await retry.retry_flagged(session, method, species, target, r_all, i0, record(names[0], primary),
-                                           found, tally)
+                                                found, tally, so_far)
             if retried is not None:
                 found.setdefault(retried.sweep, {})
                 names.append(retried.sweep)
-        branches[primary] = assemble.flag_outliers(assemble.lowest([record(nm, primary) for nm in names], n))
+        tol = state.outlier_tol_hartree
+        branches[primary] = assemble.flag_outliers(assemble.lowest([record(nm, primary) for nm in names], n), tol)
         if state.retry_flagged:
             fresh = await retry.fresh_outliers(session, method, species, target, r_all, branches[primary], found, tally)
             if fresh is not None:
                 found.setdefault(fresh.sweep, {})
                 names.append(fresh.sweep)
-                branches[primary] = assemble.flag_outliers(assemble.lowest([record(nm, primary) for nm in names], n))
+                branches[primary] = assemble.flag_outliers(assemble.lowest([record(nm, primary) for nm in names], n),
+                                                           tol)
 
     limit = separated_atoms(species, atoms)
     frag_limit = min((f.energy_hartree for f in frags), default=None)
@@ -301,6 +312,18 @@ async def _instability_start(session, method, species, target, point, branch, r_
 def raw_point(scan: Scan, point):
     """The computed :class:`lcao.methods.PointResult` behind a curve point."""
     return retry.raw_of(scan.found, point)
+
+
+def _atoms_sweep_needed(points, limit_hartree: float, tol: float) -> bool:
+    """Whether a sweep from equilibrium needs the sweep from the atoms beside it
+    (``StatePlan.atoms_sweep_if_needed``): a point missing or untrusted, or the longest distance more than
+    :data:`lcao.methods.base.ATOMS_GAP_HARTREE` above the separated atoms."""
+    from ..methods.base import ATOMS_GAP_HARTREE
+
+    flagged = assemble.flag_outliers(points, tol)
+    if any(p is None or not p.trusted for p in flagged):
+        return True
+    return not flagged[-1].energy_hartree - limit_hartree <= ATOMS_GAP_HARTREE
 
 
 async def _refine(session, method, species, target, found, branches, well_branch, tally: Tally, final=None) -> tuple:
