@@ -30,9 +30,10 @@ EARLY_POINTS_PER_TASK = 2
 class EarlyCorrelation:
     """This level's energies on the reference points of the sweeps from equilibrium, started as each piece
     of those sweeps is committed, on the workers that the reference's sequential chains leave idle (one
-    worker fewer than the executor has, so that a chain never waits for more than a small task). At the
-    correlation stage, a job whose reference point is one of these takes the result already under way
-    (:meth:`take`); the rest are cancelled (:meth:`drop_rest`). Nothing here is stored before the final
+    worker fewer than the executor has, so that a chain never waits for more than a small task), until
+    the reference curve is done (:meth:`close` cancels those not started by then). At the correlation
+    stage, a job whose reference point is one of these takes the result already under way (:meth:`take`);
+    the rest are cancelled (:meth:`drop_rest`). Nothing here is stored before the final
     reference curve has chosen its points, so the store never holds a level's energy on a reference point
     the curve did not keep."""
 
@@ -42,6 +43,7 @@ class EarlyCorrelation:
         self.pending: dict = {}  # (r_bohr rounded, reference energy) -> (future, index in its task)
         self.futures: list = []
         self.taken: set = set()
+        self.started: set = set()
         self.gate = asyncio.Semaphore(max(1, session.executor.workers - 1))
 
     def __call__(self, species, multiplicity, level, sweep, branch, points) -> None:
@@ -60,12 +62,16 @@ class EarlyCorrelation:
 
     async def _run(self, task):
         async with self.gate:  # the reference's chains keep a worker
+            self.started.add(id(asyncio.current_task()))
             return await self.session.run(task)
 
-    def open(self) -> None:
-        """The reference curve is done: the tasks still waiting may take every worker."""
-        for _ in range(self.session.executor.workers - max(1, self.session.executor.workers - 1)):
-            self.gate.release()
+    def close(self) -> None:
+        """The reference curve is done: the tasks not yet started are cancelled (the correlation stage
+        computes what it needs, in its own order), those running are kept."""
+        for fut in self.futures:
+            if id(fut) not in self.started:
+                fut.cancel()
+        self.pending = {k: v for k, v in self.pending.items() if id(v[0]) in self.started}
 
     def take(self, ref):
         """An awaitable of this level's point on the reference point ``ref``, or None where none was started."""
@@ -88,6 +94,53 @@ class EarlyCorrelation:
             if id(fut) not in self.taken:
                 fut.cancel()
             fut.add_done_callback(lambda f: f.cancelled() or f.exception())
+
+
+async def _correlate_branches(correlate, branches: dict, n: int, workers: int) -> dict:
+    """The level's points on the reference branches (``correlate(branch, indices)`` -> (sweep, r) -> point).
+    A single branch: every trusted point. Both branches of a closed shell: the unrestricted branch
+    everywhere and the restricted one only as far as the final curve can use it
+    (:func:`lcao.scan.assemble.switch_once`): inside the instability and the first ``2 x workers`` points
+    past it beside the unrestricted branch, then outward ``workers`` points at a time until the first
+    distance where the unrestricted energy lies below the restricted one (the switch), and past it only
+    where the unrestricted point is not trusted. The restricted reference of a
+    stretched bond is where coupled cluster converges slowest (1-3 s a point for N2 in cc-pVDZ against
+    0.5 s in the well), and past the switch its energies were never used."""
+    if set(branches) != {"restricted", "unrestricted"}:
+        got: dict = {}
+        for branch in branches:
+            got.update(await correlate(branch, range(n)))
+        return got
+    rest, uns = branches["restricted"], branches["unrestricted"]
+    trusted = lambda pts, i: pts[i] is not None and pts[i].trusted  # noqa: E731
+    start = next((i for i in range(n) if trusted(uns, i)), None)
+    if start is None:
+        return await correlate("restricted", range(n))
+    # the first 2 x workers restricted points past the instability go with the well: the switch rarely comes
+    # sooner, and they run beside the unrestricted branch instead of after it
+    todo = [i for i in range(start, n) if trusted(rest, i)]
+    ahead, todo = todo[:2 * workers], todo[2 * workers:]
+    inside = asyncio.ensure_future(correlate("restricted", [*range(start), *ahead]))
+    outside = asyncio.ensure_future(correlate("unrestricted", range(n)))
+    got = {**await inside, **await outside}
+
+    def energy(branch, pts, i):
+        p = got.get((f"{branch}/correlated", round(pts[i].r_bohr, 8))) if trusted(pts, i) else None
+        return p.energy if p is not None and p.converged else None
+
+    switch = next((i for i in ahead if _crossed(energy("restricted", rest, i), energy("unrestricted", uns, i))), n)
+    while todo and switch == n:
+        batch, todo = todo[:workers], todo[workers:]
+        got.update(await correlate("restricted", batch))
+        switch = next((i for i in batch if _crossed(energy("restricted", rest, i), energy("unrestricted", uns, i))), n)
+    fallback = [i for i in todo if i > switch and energy("unrestricted", uns, i) is None]
+    if fallback:
+        got.update(await correlate("restricted", fallback))
+    return got
+
+
+def _crossed(e_restricted, e_unrestricted) -> bool:
+    return e_restricted is not None and e_unrestricted is not None and e_unrestricted < e_restricted
 
 
 def _placeholder(ref_point: CurvePoint, sweep: str) -> CurvePoint:
@@ -116,18 +169,20 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
     finally:
         if early is not None:
             session.watchers.remove(early)
-            early.open()
+            early.close()
     tally.merge(ref_tally)
     n = len(r_all)
     state = method.state_plan(target.level, target.multiplicity)
-    jobs = []
-    for branch, pts in ref.result.branches.items():
-        for p in pts:
-            if p is not None and p.trusted:
-                jobs.append((f"{branch}/correlated", branch, protocol.raw_point(ref, p)))
+
+    async def correlate(branch, indices):
+        pts = ref.result.branches[branch]
+        jobs = [(f"{branch}/correlated", branch, protocol.raw_point(ref, pts[i])) for i in indices
+                if pts[i] is not None and pts[i].trusted]
+        return await session.correlate(method, species, target, jobs, parts, tally,
+                                       early=early.take if early is not None else None)
+
     try:
-        got = await session.correlate(method, species, target, jobs, parts, tally,
-                                      early=early.take if early is not None else None)
+        got = await _correlate_branches(correlate, ref.result.branches, n, max(1, session.executor.workers))
     finally:
         if early is not None:
             early.drop_rest()
@@ -142,7 +197,9 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
                 by_index[i] = got[(name, round(p.r_bohr, 8))]
         found[name] = by_index
         listed = assemble.curve_points(by_index, n, branch, name)
-        listed = [q if q is not None or p is None else _placeholder(p, name) for q, p in zip(listed, pts)]
+        # a trusted reference point with nothing at this level was left out on purpose (the restricted branch
+        # past the switch, :func:`_correlate_branches`); an untrusted one gets a flagged placeholder
+        listed = [q if q is not None or p is None or p.trusted else _placeholder(p, name) for q, p in zip(listed, pts)]
         sweeps[name] = listed
         branches[branch] = assemble.flag_outliers(listed, state.outlier_tol_hartree)
     atoms = await atoms_task

@@ -251,8 +251,8 @@ class Session:
         """``method``'s points on reference points: ``jobs`` are (sweep, branch, reference point); returns
         (sweep, r_bohr rounded to 1e-8) -> PointResult, from the store, from ``early`` (a callable(reference
         point) giving an awaitable of the point already under way on that very reference point, or None) or
-        computed in about ``parts`` independent tasks (more where the points are dear), each committed as
-        it comes back."""
+        computed in about four independent tasks per ``parts`` (more where the points are dear), each
+        committed as it comes back."""
         from .tasks import CorrelationTask
 
         level, mult = target.level, target.multiplicity
@@ -279,7 +279,9 @@ class Session:
         if not todo:
             await asyncio.gather(*taking)
             return got
-        size = max(1, min(self.points_per_task(method, target, level.key()), -(-len(todo) // max(1, parts))))
+        # about four tasks per worker: points of one level differ in cost (a stretched or unrestricted point
+        # takes two or three times a point in the well), and small tasks keep every worker busy to the end
+        size = max(1, min(self.points_per_task(method, target, level.key()), -(-len(todo) // (4 * max(1, parts)))))
         chunks = [todo[k:k + size] for k in range(0, len(todo), size)]
 
         async def one(chunk):
