@@ -38,13 +38,14 @@ class SelfConsistentField(Method):
         lab = self.labels
         if ref == "auto":
             if multiplicity == 1:
-                return StatePlan("restricted", {"restricted": lab["RHF"], "unrestricted": lab["UHF"]}, True, "unrestricted")
-            return StatePlan("unrestricted", {"unrestricted": lab["UHF"]})
+                return StatePlan("restricted", {"restricted": lab["RHF"], "unrestricted": lab["UHF"]}, True, "unrestricted",
+                                 atoms_sweep_if_needed=True)
+            return StatePlan("unrestricted", {"unrestricted": lab["UHF"]}, atoms_sweep_if_needed=True)
         if ref == "RHF":
             return StatePlan("restricted", {"restricted": lab["RHF"]}, True, None)
         if ref == "UHF":
-            return StatePlan("unrestricted", {"unrestricted": lab["UHF"]})
-        return StatePlan("restricted", {"restricted": lab["ROHF"]})
+            return StatePlan("unrestricted", {"unrestricted": lab["UHF"]}, atoms_sweep_if_needed=True)
+        return StatePlan("restricted", {"restricted": lab["ROHF"]}, atoms_sweep_if_needed=True)
 
     def fixed_multiplicity(self, level, species) -> int | None:
         """A restricted closed-shell reference has one choice: the singlet."""

@@ -10,6 +10,12 @@ Otherwise the separated atoms come first, then a sweep from equilibrium and one 
 charge placement run side by side. At each distance the lower converged energy is kept and the gap
 between the sweeps recorded (:mod:`lcao.scan.assemble`).
 
+Where the method's plan says ``atoms_sweep_if_needed`` (Hartree-Fock, DFT, the active-space levels), the
+sweeps from the atoms run only after the sweep that heads for them (from the instability, or from
+equilibrium) and only where it leaves a point untrusted or ends more than 1 mEh above the separated atoms:
+on the twelve curves of ``benchmarks/numbers.py`` the curves, refined points and r_e are the same with or
+without them, and they cost a sixth of a Hartree-Fock curve's work.
+
 Refinement points about the coarse minimum and the orbital analysis along the curve come last, side
 by side. Each stage's sweeps are independent and go to the executor together.
 """
@@ -164,18 +170,26 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
                 notes.append(assemble.instability_note(state, instability[1]))
         atoms = await atoms_task
         frags = fragment_choices(species, target.spin, atoms)
+        from_atoms = []
         if k is not None and state.secondary:
-            for f in frags:
-                spec = planning.from_atoms(state.secondary, r_all, f.label,
-                                           method.fragment_start(target, f.a, f.b, f.flip), k)
-                later.append((state.secondary, spec, start(spec)))
+            from_atoms = [planning.from_atoms(state.secondary, r_all, f.label,
+                                              method.fragment_start(target, f.a, f.b, f.flip), k) for f in frags]
+            if not state.atoms_sweep_if_needed:
+                later += [(state.secondary, spec, start(spec)) for spec in from_atoms]
+                from_atoms = []
         await asyncio.gather(*running)
         name = eq[0].sweep
         branches[primary] = assemble.flag_outliers(record(name, primary))
-        if later and refine_points:  # the well is the primary branch, complete now
+        if (later or from_atoms) and refine_points:  # the well is the primary branch, complete now
             refining = asyncio.ensure_future(_refine(session, method, species, target, found, branches, primary, tally))
-        if later:
+        if later or from_atoms:
             await asyncio.gather(*(t for _, _, t in later))
+            if from_atoms and (not later or _atoms_sweep_needed(
+                    record(later[0][1].sweep, state.secondary)[k:], separated_atoms(species, atoms).energy_hartree,
+                    state.outlier_tol_hartree)):
+                more = [(state.secondary, spec, start(spec)) for spec in from_atoms]
+                await asyncio.gather(*(t for _, _, t in more))
+                later += more
             lists = [record(spec.sweep, br) for br, spec, _ in later]
             branches[state.secondary] = assemble.flag_outliers(assemble.lowest(lists, n))
     else:

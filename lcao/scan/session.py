@@ -183,6 +183,8 @@ class Session:
         size = self.points_per_task(method, target, level.key())
         history: tuple = ()
         parts = pieces(spec.indices, size)
+        check = spec.check_instability
+        outward = len(spec.indices) < 2 or spec.indices[-1] > spec.indices[0]
         for j, part in enumerate(parts):
             part_known = tuple(got.get(i) for i in part)
             if all(p is not None for p in part_known) and not (j == 0 and spec.seed is not None and seed_known is None):
@@ -195,7 +197,7 @@ class Session:
                 continue
             task = ChainTask(method, target, spec.sweep, spec.branch, tuple(r_all[i] for i in part), part_known,
                              spec.start, history, r_all[spec.seed] if (spec.seed is not None and j == 0) else None,
-                             seed_known if j == 0 else None, spec.check_instability)
+                             seed_known if j == 0 else None, check)
             done = await self.run(task)
             tally.pids.add(done.pid)
             outcome = done.value
@@ -209,6 +211,8 @@ class Session:
                     got[i] = p
                     self.commit_point(species, mult, level, spec.sweep, p, tally)
                     new.append(p)
+            if outward and any(p.unstable_towards is not None for p in new):
+                check = False  # as within a chain (lcao.scan.tasks.ChainTask): the first unstable distance only
             if new:
                 self._measured(level, done.seconds / len(new))
                 for watch in list(self.watchers):

@@ -67,7 +67,9 @@ class ChainTask:
     solution (``history`` carries them from an earlier piece), or from ``start`` when there are none.
     ``seed`` is a distance computed first from ``start`` (or known) that starts the chain without
     belonging to it: the first point of the other half of a sweep. Points already in the store
-    (``known``) are taken, not recomputed.
+    (``known``) are taken, not recomputed. A chain that checks for an instability towards the other
+    branch stops checking, when it runs outward, after the first unstable point: only the smallest
+    unstable distance starts the other branch, and the check costs as much as the point itself.
     """
 
     method: Method
@@ -101,14 +103,18 @@ class ChainTask:
                 p = seed = m.point(t, self.seed, self.branch, self.start, self.check_instability)
             remember(history, p)
         out = []
+        check = self.check_instability
+        outward = len(self.r_bohr) < 2 or self.r_bohr[-1] > self.r_bohr[0]
         for r, got in zip(self.r_bohr, known):
             if got is None:
-                got = m.point(t, r, self.branch, start_for(r), self.check_instability)
+                got = m.point(t, r, self.branch, start_for(r), check)
                 out.append(got)
                 log.debug("%s %s r=%.4f bohr E=%.8f conv=%s cycles=%d", t.atoms, self.sweep, r, got.energy,
                           got.converged, got.cycles)
             else:
                 out.append(None)
+            if outward and got.unstable_towards is not None:
+                check = False  # the protocol needs the first unstable distance only (the smallest)
             remember(history, got)
         return ChainOutcome(tuple(out), seed, tuple(history))
 
