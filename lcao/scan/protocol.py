@@ -150,7 +150,6 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
     if state.instability_check:
         eq = planning.from_equilibrium(primary, r_all, i0, check_instability=True)
         running = [start(s) for s in eq]
-        atoms_task = asyncio.ensure_future(session.atoms(method, target.level, states))
         towards = state.secondary or ("unrestricted" if primary == "restricted" else "restricted")
         k = None
         for t in reversed(running):  # the inward half first: an unstable point there comes first
@@ -168,20 +167,26 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
                 later[-1] += (start(later[-1][1]),)
             else:
                 notes.append(assemble.instability_note(state, instability[1]))
-        atoms = await atoms_task
-        frags = fragment_choices(species, target.spin, atoms)
-        from_atoms = []
-        if k is not None and state.secondary:
-            from_atoms = [planning.from_atoms(state.secondary, r_all, f.label,
-                                              method.fragment_start(target, f.a, f.b, f.flip), k) for f in frags]
-            if not state.atoms_sweep_if_needed:
-                later += [(state.secondary, spec, start(spec)) for spec in from_atoms]
-                from_atoms = []
+        # the atoms after the sweep from the instability: a worker that took them first would hold that sweep
+        # back, and where the sweeps from the atoms run only if needed, nothing waits for them before the end
+        atoms_task = asyncio.ensure_future(session.atoms(method, target.level, states))
+
+        def sweeps_from_atoms(atoms):
+            if k is None or not state.secondary:
+                return []
+            return [planning.from_atoms(state.secondary, r_all, f.label, method.fragment_start(target, f.a, f.b, f.flip), k)
+                    for f in fragment_choices(species, target.spin, atoms)]
+
+        if not state.atoms_sweep_if_needed:
+            later += [(state.secondary, spec, start(spec)) for spec in sweeps_from_atoms(await atoms_task)]
         await asyncio.gather(*running)
         name = eq[0].sweep
         branches[primary] = assemble.flag_outliers(record(name, primary))
-        if (later or from_atoms) and refine_points:  # the well is the primary branch, complete now
+        if k is not None and state.secondary and refine_points:  # the well is the primary branch, complete now
             refining = asyncio.ensure_future(_refine(session, method, species, target, found, branches, primary, tally))
+        atoms = await atoms_task
+        frags = fragment_choices(species, target.spin, atoms)
+        from_atoms = sweeps_from_atoms(atoms) if state.atoms_sweep_if_needed else []
         if later or from_atoms:
             await asyncio.gather(*(t for _, _, t in later))
             if from_atoms and (not later or _atoms_sweep_needed(
