@@ -194,6 +194,14 @@ class Store:
 
     # points -----------------------------------------------------------------
 
+    def has_species(self, species) -> bool:
+        """Whether any point of this species (any level, state or sweep) may be read from the store."""
+        if not self.reuse:
+            return any(k[0] == species.label and k[1] == species.charge for k in self._written)
+        row = self.conn.execute("SELECT 1 FROM points WHERE species=? AND charge=? AND protocol=? LIMIT 1",
+                                (species.label, species.charge, PROTOCOL_VERSION)).fetchone()
+        return row is not None
+
     def get_point(self, species, multiplicity, level, sweep, r_bohr):
         """The stored :class:`lcao.methods.PointResult`, or None."""
         from .methods.base import PointResult
@@ -345,3 +353,23 @@ class MemoryStore(Store):
         self.schema = SCHEMA_VERSION
         self.conn = sqlite3.connect(":memory:", isolation_level=None)
         self._check_and_init()
+
+
+class RecordingStore(MemoryStore):
+    """An in-memory store that also keeps what was put into it, in order, as plain values: what a worker
+    that ran a whole series member hands back for the client to commit to the real store
+    (:class:`lcao.scan.tasks.MemberTask`)."""
+
+    def __init__(self):
+        super().__init__()
+        #: (species, multiplicity, level, sweep, PointResult) and (AtomResult, level), as put
+        self.points: list = []
+        self.atoms: list = []
+
+    def put_point(self, species, multiplicity, level, sweep, point) -> bool:
+        self.points.append((species, multiplicity, level, sweep, point))
+        return super().put_point(species, multiplicity, level, sweep, point)
+
+    def put_atom(self, state, level) -> None:
+        self.atoms.append((state, level))
+        super().put_atom(state, level)

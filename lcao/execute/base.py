@@ -22,6 +22,9 @@ class Executor(concurrent.futures.Executor):
     workers: int = 1
     #: a short name for outputs and logs
     kind: str = "executor"
+    #: a series sends each cheap member as one task (its whole curve in one worker) rather than its sweeps
+    #: and points one by one: for executors whose round trip costs milliseconds (a cluster), not a local pool
+    whole_members: bool = False
 
     def describe(self) -> dict:
         """What ran the work, for the provenance of outputs."""

@@ -122,6 +122,10 @@ class Session:
         self.pids.add(done.pid)
         return done
 
+    def progress_tick(self, label: str, n: int) -> None:
+        """Tell the progress reporter that ``n`` more points are done."""
+        self._tick(label, n)
+
     def _tick(self, label: str, n: int) -> None:
         if self.progress is not None and n:
             self.progress(label, n)

@@ -280,3 +280,35 @@ class SpatialCheckTask:
 
     def run(self) -> tuple:
         return tuple(self.method.spatial_breaking(self.target, p) for p in self.points)
+
+
+@dataclass(frozen=True)
+class MemberTask:
+    """A whole series member in one worker, the unit of work of a cluster for cheap levels
+    (:func:`lcao.series.run_series`): its curve, fit and orbitals on a serial executor and an in-memory store.
+    Returns (its :class:`lcao.series.SeriesRow`, the points and the atoms it stored, as plain values that the
+    client commits to the real store, so that only the client writes it)."""
+
+    member: object = field(repr=False)
+    files: bool = False
+    #: the client's executor as outputs describe it (``Executor.describe()``)
+    execution: dict = field(default_factory=dict)
+
+    def run(self) -> tuple:
+        from ..execute.serial import SerialExecutor
+        from ..series import run_member_async
+        from ..store import RecordingStore
+        from .session import Session, run_sync
+
+        described = {**self.execution, "unit_of_work": "the whole member in one worker"}
+
+        class InWorker(SerialExecutor):  # serial here, described as what the client ran it on
+            def describe(self) -> dict:
+                return dict(described)
+
+        store = RecordingStore()
+        try:
+            row = run_sync(run_member_async(Session(store, InWorker()), self.member, self.files))
+        finally:
+            store.close()
+        return row, tuple(store.points), tuple(store.atoms)
