@@ -54,28 +54,6 @@ BATCH_WORKER_CONFIG = {"distributed.worker.profile.enabled": False,
                                                                "MALLOC_MMAP_THRESHOLD_": 2**26}}
 
 
-def _imports():
-    try:
-        import dask  # noqa: F401
-        import distributed
-    except ImportError:
-        raise InputError("a Dask cluster needs the cluster extra: pip install 'lcao[cluster]'") from None
-    return distributed
-
-
-_FROZEN = False
-
-#: settings for the workers lcao starts (a worker of a batch job gets the same from its environment,
-#: :func:`jobqueue_cluster`): no statistical profiler (it samples every task's stack 100 times a second and
-#: took 3 % off the computation), and glibc's own memory trimming instead of the threshold of 64 KiB that Dask's
-#: nanny sets by default, under which every integral array is handed back to the system and faulted in again
-#: (tasks ran 15 % slower; the memory a worker holds between tasks is bounded by lcao's caches)
-WORKER_CONFIG = {"distributed.worker.profile.enabled": False,
-                 "distributed.nanny.pre-spawn-environ": {"OMP_NUM_THREADS": 1, "MKL_NUM_THREADS": 1,
-                                                         "OPENBLAS_NUM_THREADS": 1,
-                                                         "MALLOC_TRIM_THRESHOLD_": 2**27, "MALLOC_MMAP_THRESHOLD_": 2**26}}
-
-
 def run_in_worker(fn, threads: int, shared: str | None, *args):
     """Run a task in a Dask worker: threads and PySCF's memory limit first (cheap, and right for every task
     wherever the scheduler sends it), and on a local cluster the integrals shared with the other workers
