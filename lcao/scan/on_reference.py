@@ -269,7 +269,9 @@ async def refine_at(session, method, species, target, done, nearest, centre: flo
         listed = assemble.curve_points(by_index, len(specs[0].r_all), nearest.branch, name)
         return assemble.flag_outliers([q for q in listed if q is not None]), merged
 
-    return await protocol.moving_refinement(window, centre, ref_point.warm if ref_point is not None else None)
+    from .refine import moving_refinement
+
+    return await moving_refinement(window, centre, ref_point.warm if ref_point is not None else None)
 
 
 def correlated_final(species, target, method, atoms, branches: dict, n: int):

@@ -29,7 +29,7 @@ from dataclasses import dataclass, replace
 from ..atoms import fragment_choices, needed_states, separated_atoms
 from ..methods.base import Target
 from ..units import bohr_to_angstrom
-from . import assemble, plan as planning, retry
+from . import assemble, plan as planning, refine, retry
 from .grid import expected_bond_length_bohr
 from .session import Tally
 
@@ -183,7 +183,8 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
         name = eq[0].sweep
         branches[primary] = assemble.flag_outliers(record(name, primary))
         if k is not None and state.secondary and refine_points:  # the well is the primary branch, complete now
-            refining = asyncio.ensure_future(_refine(session, method, species, target, found, branches, primary, tally))
+            refining = asyncio.ensure_future(refine.well_refinement(session, method, species, target, found, branches,
+                                                                    primary, tally))
         atoms = await atoms_task
         frags = fragment_choices(species, target.spin, atoms)
         from_atoms = sweeps_from_atoms(atoms) if state.atoms_sweep_if_needed else []
@@ -248,8 +249,8 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
     done = Scan(result, found, state, target)
     if refining is None and refine_points:
         well_branch = "restricted" if ("restricted" in branches and "unrestricted" in branches) else None
-        refining = asyncio.ensure_future(_refine(session, method, species, target, found, branches, well_branch, tally,
-                                                 final))
+        refining = asyncio.ensure_future(refine.well_refinement(session, method, species, target, found, branches,
+                                                                well_branch, tally, final))
     along = asyncio.ensure_future(analyse_along(session, method, done, parts)) if analyse else None
     if spatial:
         found_sym = await symmetric_branch(session, method, species, target, r_all, i0, final, found, tally,
@@ -310,7 +311,8 @@ async def symmetric_branch(session, method, species, target, r_all, i0, final, f
     if sp.largest_gap_hartree < assemble.SPATIAL_MATTERS_HARTREE:
         return None
     if refine_points:
-        sp = replace(sp, refined=await _refine(session, method, species, target, found, {name: pts}, name, tally))
+        sp = replace(sp, refined=await refine.well_refinement(session, method, species, target, found, {name: pts}, name,
+                                                              tally))
     return sp, pts, sweep
 
 
@@ -343,63 +345,6 @@ def _atoms_sweep_needed(points, limit_hartree: float, tol: float) -> bool:
     if any(p is None or not p.trusted for p in flagged):
         return True
     return not flagged[-1].energy_hartree - limit_hartree <= ATOMS_GAP_HARTREE
-
-
-async def _refine(session, method, species, target, found, branches, well_branch, tally: Tally, final=None) -> tuple:
-    """Nine points 0.01 A apart about the coarse minimum of the well (a local fit through its trusted
-    points), warm-started from the nearest trusted well point, outward then inward (stored under
-    ``<branch>/refine``). Returns CurvePoints, increasing r (untrusted ones flagged), or () when the well
-    has too few points or no minimum inside the grid."""
-    from ..errors import FitError
-    from ..fit.local import local_fit
-
-    pts = branches[well_branch] if well_branch is not None else final
-    good = [p for p in pts if p is not None and p.trusted]
-    if len(good) < 5:
-        return ()
-    try:
-        lf = local_fit([p.r_bohr for p in good], [p.energy_hartree for p in good])
-    except FitError:
-        return ()
-    nearest = min(good, key=lambda p: abs(p.r_bohr - lf.re))
-    raw = retry.raw_of(found, nearest)
-
-    async def window(centre, start):
-        specs = planning.refinement(nearest.branch, centre, start)
-        merged = await session.chains(method, species, target, specs, tally)
-        name = specs[0].sweep
-        return assemble.flag_outliers(assemble.curve_points(merged, len(specs[0].r_all), nearest.branch, name)), merged
-
-    return await moving_refinement(window, lf.re, raw.warm if raw is not None else None)
-
-
-async def moving_refinement(window, centre: float, start) -> tuple:
-    """The refinement windows about ``centre``: ``window(centre, start)`` computes nine points (CurvePoints,
-    and their computed points by index); where a local fit finds no minimum inside them, the next window is
-    centred where the minimum lies (:func:`lcao.scan.plan.next_centre`), started from the lowest point so
-    far (at most :data:`lcao.scan.plan.MAX_REFINE_MOVES` moves). Returns every window's points, increasing r."""
-    from ..errors import FitError
-    from ..fit.local import local_fit
-    from ..units import angstrom_to_bohr
-
-    step = float(angstrom_to_bohr(planning.REFINE_STEP_ANGSTROM))
-    kept: dict = {}
-    for move in range(planning.MAX_REFINE_MOVES + 1):
-        points, raws = await window(centre, start)
-        for p in points:
-            if p is not None:
-                kept[round(p.r_bohr, 8)] = p
-        good = [p for p in points if p is not None and p.trusted]
-        if len(good) < 5 or move == planning.MAX_REFINE_MOVES:
-            break
-        try:
-            local_fit([p.r_bohr for p in good], [p.energy_hartree for p in good])
-            break
-        except FitError:
-            centre = planning.next_centre(good, step)
-            lowest = min(good, key=lambda p: p.energy_hartree)
-            start = next((q.warm for q in raws.values() if abs(q.r_bohr - lowest.r_bohr) < 1e-9), start)
-    return tuple(kept[k] for k in sorted(kept))
 
 
 async def analyse_along(session, method, scan_: Scan, parts: int) -> tuple:
