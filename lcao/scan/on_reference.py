@@ -51,7 +51,8 @@ class EarlyCorrelation:
                 or level.key() != self.ref_key or not sweep.endswith("from-equilibrium")):
             return
         pts = [p for p in points if p.usable]
-        size = min(EARLY_POINTS_PER_TASK, self.session.points_per_task(self.method, self.target, self.target.level.key()))
+        size = min(EARLY_POINTS_PER_TASK,
+                   self.session.points_per_task(self.method, self.target, self.target.level.key()))
         for k in range(0, len(pts), size):
             chunk = pts[k:k + size]
             fut = asyncio.ensure_future(self._run(CorrelationTask(self.method, self.target,
@@ -160,7 +161,8 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
     ref_tally = Tally()
     states = needed_states(species, target.spin)
     atoms_task = asyncio.ensure_future(session.atoms(method, target.level, states))
-    early = EarlyCorrelation(session, method, species, target, ref_level, tally) if session.executor.workers > 1 else None
+    early = (EarlyCorrelation(session, method, species, target, ref_level, tally) if session.executor.workers > 1
+             else None)
     if early is not None:
         session.watchers.append(early)
     try:

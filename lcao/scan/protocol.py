@@ -174,7 +174,8 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
         def sweeps_from_atoms(atoms):
             if k is None or not state.secondary:
                 return []
-            return [planning.from_atoms(state.secondary, r_all, f.label, method.fragment_start(target, f.a, f.b, f.flip), k)
+            return [planning.from_atoms(state.secondary, r_all, f.label,
+                                        method.fragment_start(target, f.a, f.b, f.flip), k)
                     for f in fragment_choices(species, target.spin, atoms)]
 
         if not state.atoms_sweep_if_needed:
@@ -311,8 +312,8 @@ async def symmetric_branch(session, method, species, target, r_all, i0, final, f
     if sp.largest_gap_hartree < assemble.SPATIAL_MATTERS_HARTREE:
         return None
     if refine_points:
-        sp = replace(sp, refined=await refine.well_refinement(session, method, species, target, found, {name: pts}, name,
-                                                              tally))
+        refined = await refine.well_refinement(session, method, species, target, found, {name: pts}, name, tally)
+        sp = replace(sp, refined=refined)
     return sp, pts, sweep
 
 
