@@ -8,24 +8,31 @@ from .errors import LcaoError
 from .series import Member, SeriesRow
 
 
+def _estimate(member: Member) -> tuple[int, int, float]:
+    """(grid points, multiplicities to probe, the method's estimate of one point in seconds; 0 for a member
+    that will fail as a row, such as a basis lacking an element)."""
+    from .methods import method_for
+    from .methods.base import Target
+
+    sp, lv = member.species, member.level
+    points = len(member.grid.r_bohr) if member.grid is not None else (member.points or 40)
+    probes = 1 if member.multiplicity is not None else len(sp.multiplicity_candidates())
+    try:
+        m = method_for(lv)
+        each = m.seconds_per_point(m.basis_size(Target(sp.atoms, sp.charge, sp.lowest_multiplicity(), lv)))
+    except Exception:  # noqa: BLE001 - the member fails later, as a row with the reason
+        each = 0.0
+    return points, probes, each
+
+
 def expected_cost(member: Member) -> float:
     """A rough relative cost of a member, to start the dearest first (the executor takes tasks in
     order, so the cheap ones fill the gaps at the end): more points, more sweeps from the atoms (one
     per charge placement) and more candidate multiplicities to probe cost more."""
     from .atoms import charge_placements
 
-    from .methods import method_for
-    from .methods.base import Target
-
-    points = len(member.grid.r_bohr) if member.grid is not None else (member.points or 40)
-    probes = 1 if member.multiplicity is not None else len(member.species.multiplicity_candidates())
-    sp, lv = member.species, member.level
-    try:
-        m = method_for(lv)
-        each = m.seconds_per_point(m.basis_size(Target(sp.atoms, sp.charge, sp.lowest_multiplicity(), lv)))
-    except Exception:  # a member that will fail as a row (a basis lacking an element)
-        each = 0.0
-    return points * (1 + len(charge_placements(sp))) * (1 + 0.3 * probes) * max(each, 1e-3)
+    points, probes, each = _estimate(member)
+    return points * (1 + len(charge_placements(member.species))) * (1 + 0.3 * probes) * max(each, 1e-3)
 
 
 #: a member whose curve is expected to take less than this (seconds, by the method's own estimate) goes to a
@@ -45,17 +52,7 @@ def whole_member(store, member: Member) -> bool:
 def expected_seconds(member: Member) -> float:
     """A member's curve by the method's estimate of a point: its grid, the sweeps (about three points per
     distance), and a probe per candidate multiplicity."""
-    from .methods import method_for
-    from .methods.base import Target
-
-    sp, lv = member.species, member.level
-    points = len(member.grid.r_bohr) if member.grid is not None else (member.points or 40)
-    probes = 1 if member.multiplicity is not None else len(sp.multiplicity_candidates())
-    try:
-        m = method_for(lv)
-        each = m.seconds_per_point(m.basis_size(Target(sp.atoms, sp.charge, sp.lowest_multiplicity(), lv)))
-    except Exception:  # noqa: BLE001 - a member that will fail as a row (a basis lacking an element) is cheap
-        return 0.0
+    points, probes, each = _estimate(member)
     return 3 * points * each * (1 + 0.3 * probes)
 
 
