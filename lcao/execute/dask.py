@@ -5,8 +5,10 @@ Tasks are the same plain values as everywhere (:mod:`lcao.scan.tasks`); each run
 :func:`run_in_worker`, which sets PySCF's and the BLAS libraries' threads and keeps PySCF's memory under the
 worker's limit before the task starts. Results come back to the client, which alone writes the store, so
 the workers need no shared disk (the workers of a local cluster share two-electron integrals through a
-folder of the executor's own in memory, as a local pool's do, since they share this machine). A worker that dies has its task re-run elsewhere by the scheduler; a task
-that fails for a reason of its own raises here and becomes a failed member in a series.
+folder of the executor's own in memory, as a local pool's do, since they share this machine). A worker that
+dies has its task re-run elsewhere by the scheduler; a task that fails for a reason of its own raises here
+and becomes a failed member in a series. A series sends a cheap member as one task
+(:attr:`DaskExecutor.whole_members`, :mod:`lcao.dispatch`).
 """
 
 from __future__ import annotations
