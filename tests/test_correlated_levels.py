@@ -114,6 +114,59 @@ def test_singlet_curves_reach_the_atoms_at_the_same_level(level):
     assert a.symbol == "N" and a.spin == 3
 
 
+def test_switch_rule_on_made_up_branches():
+    # analytic cases: a crossing, a restricted curve that turns down past its minimum, neither
+    from lcao.scan.assemble import switch_index
+
+    rest = [-1.0, -1.2, -1.1, -1.0, -0.9, -0.8]
+    assert switch_index(rest, [None, None, -1.05, -0.98, -0.95, -0.95], 2) == (4, "crossed")
+    assert switch_index([-1.0, -1.2, -1.1, -1.05, -1.08, -1.2], [None, None, -1.0, -0.98, -0.97, -0.96], 2) == (4, "dives")
+    # falling on the inner wall is not a dive, nor is the scatter of a grid point (2e-7 Eh)
+    assert switch_index([-0.5, -1.0, -1.2, -1.1, -1.1 - 2e-7], [None, -0.9, -1.0, -1.0, -1.0], 1) == (None, None)
+
+
+def test_n2_ccsd_t_switches_once_and_every_point_is_trusted():
+    # the restricted CCSD(T) of stretched N2 turns down as the bond stretches (on the lowest RHF solution
+    # from 1.69 A here); the curve leaves it once for the broken-symmetry UCCSD(T) branch, and no point past
+    # the switch is taken for an outlier. The well and the far branch against PySCF directly: RHF +
+    # RCCSD(T) at 1.1 A; UHF from two quartet atoms of opposite spin + UCCSD(T) at 2.4 A
+    from lcao.units import angstrom_to_bohr
+
+    def correlated(mf):
+        c = cc.CCSD(mf, frozen=2)
+        c.conv_tol, c.conv_tol_normt, c.max_cycle = 1e-9, 1e-7, 200
+        c.kernel()
+        return c.e_tot + c.ccsd_t()
+
+    def rhf(r):
+        mf = scf.RHF(gto.M(atom=f"N 0 0 0; N 0 0 {r}", basis="cc-pvdz", verbose=0))
+        mf.conv_tol = 1e-11
+        return mf.run()
+
+    def broken_uhf(r):
+        atom = scf.UHF(gto.M(atom="N 0 0 0", basis="cc-pvdz", spin=3, verbose=0)).run()
+        da, db = atom.make_rdm1()
+        n = da.shape[0]
+        dm = np.zeros((2, 2 * n, 2 * n))
+        dm[0, :n, :n], dm[1, :n, :n], dm[0, n:, n:], dm[1, n:, n:] = da, db, db, da
+        mf = scf.UHF(gto.M(atom=f"N 0 0 0; N 0 0 {r}", basis="cc-pvdz", verbose=0))
+        mf.conv_tol = 1e-11
+        mf.kernel(dm0=dm)
+        return mf
+
+    res = lcao.curve("N2", "CCSD(T)/cc-pVDZ", range_grid(1.1, 2.4, 14), multiplicity=1, analyse_points=False)
+    assert all(p.trusted for p in res.points)
+    switch = next(p for p in res.points if p.branch == "unrestricted")
+    assert 1.3 < switch.r_angstrom <= 2.0
+    assert all(p.branch == "unrestricted" for p in res.points if p.r_angstrom >= switch.r_angstrom)
+    assert any("unrestricted from" in note for note in res.scan.notes)
+    far = [p.energy_hartree for p in res.points if p.r_angstrom >= switch.r_angstrom]
+    assert all(b > a for a, b in zip(far, far[1:]))  # rising to the atoms
+    assert res.points[0].r_bohr == pytest.approx(float(angstrom_to_bohr(1.1)))
+    assert res.points[0].energy_hartree == pytest.approx(correlated(rhf(1.1)), abs=1e-6)
+    assert res.points[-1].energy_hartree == pytest.approx(correlated(broken_uhf(2.4)), abs=1e-6)
+
+
 def test_extrapolated_well_level_gives_the_handbook_d0_of_h2_and_lih(tmp_path):
     # the path of the CBS(cc-pVTZ,cc-pVQZ) check at cc-pVDZ/cc-pVTZ: a Hartree-Fock curve, its well and
     # atoms at CCSD(T)/CBS(cc-pVDZ,cc-pVTZ). Handbook D_0: H2 4.478 eV, LiH 2.429 eV (Huber & Herzberg

@@ -144,7 +144,7 @@ def test_ctrl_c_stops_cleanly_and_says_how_to_resume(tmp_path):
     proc.send_signal(signal.SIGINT)
     code = proc.wait(timeout=60)
     err = proc.stderr.read().decode()
-    assert code == 130
+    assert code == 130, (code, err[-2000:])
     assert "Run the same command again to resume" in err and "Traceback" not in err
     kept = count_rows(store)
     assert kept >= 8

@@ -274,8 +274,10 @@ class Method(ABC):
         energy at each chosen reference point (:meth:`on_reference`). None: the level is followed itself."""
         return None
 
-    def on_reference(self, target: Target, reference: PointResult, branch: str) -> PointResult:
-        """This method's point on a converged point of :meth:`reference_level` (same distance and branch)."""
+    def on_reference(self, target: Target, reference: PointResult, branch: str, fine: bool = True) -> PointResult:
+        """This method's point on a converged point of :meth:`reference_level` (same distance and branch).
+        ``fine`` is False for a grid point, which only draws the curve: the method may then converge its
+        iterations less far (to its library's defaults) than for the points a fit reads."""
         raise NotImplementedError(f"{type(self).__name__} is not computed on a reference")
 
     def symmetric_branch(self, level, branch: str) -> str | None:

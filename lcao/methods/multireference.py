@@ -164,7 +164,7 @@ class Nevpt2(Method):
         ref = self._cas().point(self._ref_target(target), r_bohr, branch, start)
         return self.on_reference(target, ref, branch)
 
-    def on_reference(self, target, ref, branch):
+    def on_reference(self, target, ref, branch, fine=True):
         if not ref.converged:
             return replace(ref, energy=float("nan"), components={"reference": ref.energy})
         cas = self._cas()

@@ -218,11 +218,39 @@ def lowest_over_branches(branches: dict, n: int) -> list:
     return flag_outliers(final)
 
 
+#: a restricted correlated energy this far below its inner neighbour's, outward past the well's minimum,
+#: means the restricted branch has turned down (far above the scatter of a grid point, about 2e-7 Eh)
+DIVE_HARTREE = 1e-4
+
+
+def switch_index(rest_e, uns_e, start: int) -> tuple[int | None, str | None]:
+    """Where a correlated curve leaves its restricted branch for the unrestricted one: the first index
+    from ``start`` (where the unrestricted branch begins) at which the unrestricted energy lies below the
+    restricted one ("crossed"), or at which the restricted energy falls as the bond stretches past the
+    well's minimum, by more than :data:`DIVE_HARTREE` below its inner trusted neighbour ("dives": a
+    single-reference method on a restricted reference failing, as CCSD(T) and MP2 do for stretched
+    multiple bonds). ``rest_e``, ``uns_e``: energies per grid index, None where not known or not trusted.
+    Returns (index, why), or (None, None) where neither happens over the energies given."""
+    lowest = prev = None
+    for i, (r, u) in enumerate(zip(rest_e, uns_e)):
+        if i >= start:
+            if r is not None and u is not None and u < r:
+                return i, "crossed"
+            if r is not None and prev is not None and prev > lowest and r < prev - DIVE_HARTREE:
+                return i, "dives"
+        if r is not None:
+            prev = r
+            lowest = r if lowest is None else min(lowest, r)
+    return None, None
+
+
 def switch_once(branches: dict, n: int) -> tuple[list, str | None]:
     """The curve of a level on a reference with both branches: the restricted branch through the well, the
-    unrestricted one from the first distance (outward from where it begins) where its energy falls below
-    the restricted one's, to the end; where they never cross, from where the unrestricted branch begins
-    (the reference's instability). Returns (points, a note on the switch).
+    unrestricted one from the switch (:func:`switch_index`: where its energy first falls below the
+    restricted one's, or where the restricted curve turns down) to the end; where neither happens, from
+    where the unrestricted branch begins (the reference's instability). Each side of the switch is checked
+    for outliers on its own (a step at the switch is said in the note, not taken for an outlier). Returns
+    (points, a note on the switch).
 
     Neither "lowest energy" nor "lowest reference" serves a correlated level: on the restricted reference
     of a stretched bond the correlated energy dives below the right curve (CCSD(T), MP2), and the
@@ -233,12 +261,9 @@ def switch_once(branches: dict, n: int) -> tuple[list, str | None]:
     start = next((i for i in range(n) if uns[i] is not None and uns[i].trusted), None)
     if start is None:
         return flag_outliers([r if r is not None else u for r, u in zip(rest, uns)]), None
-    switch, crossed = start, False
-    for i in range(start, n):
-        r, u = rest[i], uns[i]
-        if r is not None and r.trusted and u is not None and u.trusted and u.energy_hartree < r.energy_hartree:
-            switch, crossed = i, True
-            break
+    energy = lambda p: p.energy_hartree if p is not None and p.trusted else None  # noqa: E731
+    found, why = switch_index([energy(p) for p in rest], [energy(p) for p in uns], start)
+    switch = start if found is None else found
     final = []
     for i in range(n):
         first, second = (rest[i], uns[i]) if i < switch else (uns[i], rest[i])
@@ -246,16 +271,21 @@ def switch_once(branches: dict, n: int) -> tuple[list, str | None]:
                                                                     else (first if first is not None else second))
         final.append(pick)
     at = final[switch].r_angstrom if final[switch] is not None else float("nan")
-    if crossed:
+    r, u = rest[switch], uns[switch]
+    step = (u.energy_hartree - r.energy_hartree) if (r is not None and u is not None and r.trusted and u.trusted) else None
+    steps = f", and the curve steps by {step:+.4f} Eh there" if step is not None else ""
+    if why == "crossed":
         note = (f"restricted reference through the well, unrestricted from {at:.3f} A, where its energy first falls"
                 " below the restricted one's")
+    elif why == "dives":
+        note = (f"restricted reference through the well, unrestricted from {at:.3f} A, where the restricted curve"
+                " turns down as the bond stretches (the single-reference method failing on the restricted reference)"
+                + (f"; the unrestricted energy lies {step:+.4f} Eh from the restricted one there" if step is not None else "")
+                + ": near the switch neither branch is right; a multireference level (NEVPT2) describes that stretch")
     else:
-        r, u = rest[switch], uns[switch]
-        step = (u.energy_hartree - r.energy_hartree) if (r is not None and u is not None and r.trusted and u.trusted) else None
         note = (f"restricted reference through the well, unrestricted from {at:.3f} A, where the restricted reference"
-                " turns unstable: the two never cross over the grid" + (f", and the curve steps by {step:+.4f} Eh there"
-                                                                        if step is not None else ""))
-    return flag_outliers(final), note
+                f" turns unstable: the two never cross over the grid{steps}")
+    return flag_outliers(final[:switch]) + flag_outliers(final[switch:]), note
 
 
 def curve_notes(final, limit_hartree: float, fragment_limit, multiplicity: int, spin_square: bool,

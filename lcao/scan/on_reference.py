@@ -56,7 +56,7 @@ class EarlyCorrelation:
         for k in range(0, len(pts), size):
             chunk = pts[k:k + size]
             fut = asyncio.ensure_future(self._run(CorrelationTask(self.method, self.target,
-                                                                  tuple((p, branch) for p in chunk))))
+                                                                  tuple((p, branch) for p in chunk), fine=False)))
             self.futures.append(fut)
             for j, p in enumerate(chunk):
                 self.pending[(round(p.r_bohr, 8), p.energy)] = (fut, j)
@@ -103,8 +103,9 @@ async def _correlate_branches(correlate, branches: dict, n: int, workers: int) -
     everywhere and the restricted one only as far as the final curve can use it
     (:func:`lcao.scan.assemble.switch_once`): inside the instability and the first ``2 x workers`` points
     past it beside the unrestricted branch, then outward ``workers`` points at a time until the first
-    distance where the unrestricted energy lies below the restricted one (the switch), and past it only
-    where the unrestricted point is not trusted. The restricted reference of a
+    distance where the unrestricted energy lies below the restricted one or the restricted curve turns down
+    (the switch, :func:`lcao.scan.assemble.switch_index`), and past it only where the unrestricted point is
+    not trusted. The restricted reference of a
     stretched bond is where coupled cluster converges slowest (1-3 s a point for N2 in cc-pVDZ against
     0.5 s in the well), and past the switch its energies were never used."""
     if set(branches) != {"restricted", "unrestricted"}:
@@ -125,23 +126,26 @@ async def _correlate_branches(correlate, branches: dict, n: int, workers: int) -
     outside = asyncio.ensure_future(correlate("unrestricted", range(n)))
     got = {**await inside, **await outside}
 
-    def energy(branch, pts, i):
-        p = got.get((f"{branch}/correlated", round(pts[i].r_bohr, 8))) if trusted(pts, i) else None
-        return p.energy if p is not None and p.converged else None
+    def energies(branch, pts):
+        out = []
+        for i in range(n):
+            p = got.get((f"{branch}/correlated", round(pts[i].r_bohr, 8))) if trusted(pts, i) else None
+            out.append(p.energy if p is not None and p.converged else None)
+        return out
 
-    switch = next((i for i in ahead if _crossed(energy("restricted", rest, i), energy("unrestricted", uns, i))), n)
-    while todo and switch == n:
+    def switch():
+        return assemble.switch_index(energies("restricted", rest), energies("unrestricted", uns), start)[0]
+
+    at = switch()
+    while todo and at is None:
         batch, todo = todo[:workers], todo[workers:]
         got.update(await correlate("restricted", batch))
-        switch = next((i for i in batch if _crossed(energy("restricted", rest, i), energy("unrestricted", uns, i))), n)
-    fallback = [i for i in todo if i > switch and energy("unrestricted", uns, i) is None]
+        at = switch()
+    at = n if at is None else at
+    fallback = [i for i in todo if i > at and not trusted(uns, i)]
     if fallback:
         got.update(await correlate("restricted", fallback))
     return got
-
-
-def _crossed(e_restricted, e_unrestricted) -> bool:
-    return e_restricted is not None and e_unrestricted is not None and e_unrestricted < e_restricted
 
 
 def _placeholder(ref_point: CurvePoint, sweep: str) -> CurvePoint:
@@ -181,7 +185,7 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
         jobs = [(f"{branch}/correlated", branch, protocol.raw_point(ref, pts[i])) for i in indices
                 if pts[i] is not None and pts[i].trusted]
         return await session.correlate(method, species, target, jobs, parts, tally,
-                                       early=early.take if early is not None else None)
+                                       early=early.take if early is not None else None, fine=False)
 
     try:
         got = await _correlate_branches(correlate, ref.result.branches, n, max(1, session.executor.workers))

@@ -255,12 +255,13 @@ class Session:
             self._tick("probe", 1)
         return p, q
 
-    async def correlate(self, method, species, target, jobs, parts: int, tally: Tally, early=None) -> dict:
+    async def correlate(self, method, species, target, jobs, parts: int, tally: Tally, early=None,
+                        fine: bool = True) -> dict:
         """``method``'s points on reference points: ``jobs`` are (sweep, branch, reference point); returns
         (sweep, r_bohr rounded to 1e-8) -> PointResult, from the store, from ``early`` (a callable(reference
         point) giving an awaitable of the point already under way on that very reference point, or None) or
         computed in about four independent tasks per ``parts`` (more where the points are dear), each
-        committed as it comes back."""
+        committed as it comes back; ``fine`` False for grid points (:class:`lcao.scan.tasks.CorrelationTask`)."""
         from .tasks import CorrelationTask
 
         level, mult = target.level, target.multiplicity
@@ -293,7 +294,7 @@ class Session:
         chunks = [todo[k:k + size] for k in range(0, len(todo), size)]
 
         async def one(chunk):
-            done = await self.run(CorrelationTask(method, target, tuple((ref, branch) for _, branch, ref in chunk)))
+            done = await self.run(CorrelationTask(method, target, tuple((ref, branch) for _, branch, ref in chunk), fine))
             tally.pids.add(done.pid)
             self._measured(level, done.seconds / max(1, len(chunk)))
             for (sweep, _, _), p in zip(chunk, done.value):

@@ -242,14 +242,16 @@ class AtomLevelsTask:
 @dataclass(frozen=True)
 class CorrelationTask:
     """A level's energies on reference points: ``items`` are (reference point, branch), each correlated
-    independently (:meth:`lcao.methods.Method.on_reference`)."""
+    independently (:meth:`lcao.methods.Method.on_reference`); ``fine`` False for grid points (converged to
+    the library's defaults), True for the points a fit reads."""
 
     method: Method
     target: Target
     items: tuple = field(repr=False)
+    fine: bool = True
 
     def run(self) -> tuple:
-        return tuple(self.method.on_reference(self.target, point, branch) for point, branch in self.items)
+        return tuple(self.method.on_reference(self.target, point, branch, self.fine) for point, branch in self.items)
 
 
 @dataclass(frozen=True)
