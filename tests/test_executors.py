@@ -230,3 +230,41 @@ def test_warm_start_extrapolation_is_exact_for_low_order_polynomials():
     assert np.array_equal(lagrange_extrapolate([(1.0, {"dm": a})], 2.0)["dm"], a)
     # a repeated distance gives no extrapolation, only the last warm start
     assert np.array_equal(lagrange_extrapolate([(1.0, {"dm": a}), (1.0, {"dm": b})], 2.0)["dm"], b)
+
+
+def test_a_correlated_curve_is_the_same_on_one_worker_and_two():
+    # on two workers the level's energies start during the reference sweep and the refinement starts on
+    # the well alone; what the curve keeps must not depend on that (same starts, same numbers, to the bit)
+    grid = range_grid(0.9, 2.6, 14)
+    one = lcao.curve("N2", "MP2/cc-pVDZ", grid, multiplicity=1, workers=1, analyse_points=False)
+    two = lcao.curve("N2", "MP2/cc-pVDZ", grid, multiplicity=1, workers=2, analyse_points=False)
+    assert [p.energy_hartree for p in one.points] == [p.energy_hartree for p in two.points]
+    assert [p.branch for p in one.points] == [p.branch for p in two.points]
+    assert [(p.r_bohr, p.energy_hartree) for p in one.refined] == [(p.r_bohr, p.energy_hartree) for p in two.refined]
+    assert len(one.refined) >= 9 and one.fit.local.re == two.fit.local.re
+
+
+def test_the_priority_gate_lets_in_the_urgent_first():
+    import asyncio
+
+    from lcao.scan.session import PriorityGate
+
+    async def scenario():
+        gate = PriorityGate(1)
+        order = []
+
+        async def holder(name, priority):
+            await gate.acquire(priority)
+            order.append(name)
+            await asyncio.sleep(0)
+            gate.release()
+
+        await gate.acquire(1)  # the one slot taken: everyone else waits
+        waiting = [asyncio.ensure_future(holder(n, p)) for n, p in (("grid a", 1), ("grid b", 1), ("refine", 0))]
+        await asyncio.sleep(0)
+        gate.release()
+        await asyncio.gather(*waiting)
+        return order, gate.free
+
+    order, free = asyncio.run(scenario())
+    assert order == ["refine", "grid a", "grid b"] and free == 1

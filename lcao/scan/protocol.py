@@ -99,11 +99,13 @@ def choose_multiplicity(trials) -> int:
 
 
 async def scan(session, method, species, target: Target, r_all, tally: Tally, *, refine_points: bool = True,
-               analyse: bool = True, parts: int = 1, spatial: bool = True) -> tuple:
+               analyse: bool = True, parts: int = 1, spatial: bool = True, fitted: bool = False) -> tuple:
     """Run the protocol over the distances ``r_all`` (bohr) and assemble the curve; with
     ``refine_points`` the refinement points about the well's minimum and with ``analyse`` the orbital
     analysis along the curve as well. With ``spatial``, where the lowest solution breaks the molecule's
-    spatial symmetry, its symmetry-adapted branch is computed too (:func:`symmetric_branch`).
+    spatial symmetry, its symmetry-adapted branch is computed too (:func:`symmetric_branch`). With
+    ``fitted``, the grid's own points feed a fit (the window of a well level): a level on a reference
+    converges them as tightly as refinement points (:meth:`lcao.methods.Method.on_reference`).
 
     Each piece of work starts as soon as what it needs is there: the secondary branch's sweeps once the
     first unstable point is known (the inward half of the primary sweep usually finds it first), the
@@ -117,12 +119,12 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
         from . import cbs
 
         return await cbs.scan(session, method, species, target, r_all, tally, refine_points=refine_points,
-                              analyse=analyse, parts=parts)
+                              analyse=analyse, parts=parts, fitted=fitted)
     if method.reference_level(target.level) is not None:
         from . import on_reference
 
         return await on_reference.scan(session, method, species, target, r_all, tally, refine_points=refine_points,
-                                       analyse=analyse, parts=parts)
+                                       analyse=analyse, parts=parts, fitted=fitted)
     n = len(r_all)
     state = method.state_plan(target.level, target.multiplicity)
     i0 = planning.equilibrium_index(r_all, expected_bond_length_bohr(*species.z))

@@ -11,6 +11,8 @@ from __future__ import annotations
 
 import asyncio
 import contextlib
+import heapq
+import itertools
 import logging
 from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass, field
@@ -28,6 +30,39 @@ log = logging.getLogger(__name__)
 #: what the run measures): a killed run loses at most that much per worker, and progress is reported
 #: at least that often. Chains of Hartree-Fock points in small bases stay whole.
 TASK_SECONDS = 5.0
+
+
+class PriorityGate:
+    """At most ``slots`` holders at a time; waiters are let in by priority (lower first), then in order of
+    arrival. The correlation tasks of a curve pass through one, so that no more of them sit in the
+    executor's queue than there are workers, and a refinement point (the fit waits on it) goes ahead of
+    grid points still waiting."""
+
+    def __init__(self, slots: int):
+        self.free = max(1, slots)
+        self.waiting: list = []
+        self.arrivals = itertools.count()
+
+    async def acquire(self, priority: int) -> None:
+        if self.free > 0 and not self.waiting:
+            self.free -= 1
+            return
+        fut = asyncio.get_running_loop().create_future()
+        heapq.heappush(self.waiting, (priority, next(self.arrivals), fut))
+        try:
+            await fut
+        except asyncio.CancelledError:
+            if fut.done() and not fut.cancelled():  # let in and cancelled at once: pass the slot on
+                self.release()
+            raise
+
+    def release(self) -> None:
+        while self.waiting:
+            _, _, fut = heapq.heappop(self.waiting)
+            if not fut.done():
+                fut.set_result(None)
+                return
+        self.free += 1
 
 
 @dataclass
@@ -98,6 +133,8 @@ class Session:
         #: callables(species, multiplicity, level, sweep, branch, points) told of each piece of a chain
         #: as it is committed (:class:`lcao.scan.on_reference.EarlyCorrelation` listens)
         self.watchers: list = []
+        #: correlation tasks in the executor at once: one per worker, refinement points first
+        self.correlation_gate = PriorityGate(max(1, executor.workers))
 
     # tasks ---------------------------------------------------------------------------------
 
@@ -256,12 +293,14 @@ class Session:
         return p, q
 
     async def correlate(self, method, species, target, jobs, parts: int, tally: Tally, early=None,
-                        fine: bool = True) -> dict:
+                        fine: bool = True, priority: int | None = None) -> dict:
         """``method``'s points on reference points: ``jobs`` are (sweep, branch, reference point); returns
         (sweep, r_bohr rounded to 1e-8) -> PointResult, from the store, from ``early`` (a callable(reference
         point) giving an awaitable of the point already under way on that very reference point, or None) or
         computed in about four independent tasks per ``parts`` (more where the points are dear), each
-        committed as it comes back; ``fine`` False for grid points (:class:`lcao.scan.tasks.CorrelationTask`)."""
+        committed as it comes back; ``fine`` False for grid points (:class:`lcao.scan.tasks.CorrelationTask`).
+        The tasks pass :attr:`correlation_gate` with ``priority`` (default: 0 for fine points, 1 for grid
+        points)."""
         from .tasks import CorrelationTask
 
         level, mult = target.level, target.multiplicity
@@ -294,7 +333,12 @@ class Session:
         chunks = [todo[k:k + size] for k in range(0, len(todo), size)]
 
         async def one(chunk):
-            done = await self.run(CorrelationTask(method, target, tuple((ref, branch) for _, branch, ref in chunk), fine))
+            await self.correlation_gate.acquire(priority if priority is not None else (0 if fine else 1))
+            try:
+                done = await self.run(CorrelationTask(method, target, tuple((ref, branch) for _, branch, ref in chunk),
+                                                      fine))
+            finally:
+                self.correlation_gate.release()
             tally.pids.add(done.pid)
             self._measured(level, done.seconds / max(1, len(chunk)))
             for (sweep, _, _), p in zip(chunk, done.value):

@@ -36,7 +36,7 @@ async def well_scan(session, species, level, multiplicity: int, r_centre: float,
     for move in range(MAX_MOVES + 1):
         grid = Grid(tuple(centre + k * step for k in range(-REFINE_HALF, REFINE_HALF + 1)), "well level")
         done, _, _ = await protocol.scan(session, method, species, target, grid.r_bohr, tally, refine_points=False,
-                                         analyse=False, spatial=False)
+                                         analyse=False, spatial=False, fitted=True)
         good = [p for p in done.result.points if p.trusted]
         if len(good) < 5:
             return done.result, good
