@@ -120,7 +120,8 @@ def test_switch_rule_on_made_up_branches():
 
     rest = [-1.0, -1.2, -1.1, -1.0, -0.9, -0.8]
     assert switch_index(rest, [None, None, -1.05, -0.98, -0.95, -0.95], 2) == (4, "crossed")
-    assert switch_index([-1.0, -1.2, -1.1, -1.05, -1.08, -1.2], [None, None, -1.0, -0.98, -0.97, -0.96], 2) == (4, "dives")
+    diving = [-1.0, -1.2, -1.1, -1.05, -1.08, -1.2]
+    assert switch_index(diving, [None, None, -1.0, -0.98, -0.97, -0.96], 2) == (4, "dives")
     # falling on the inner wall is not a dive, nor is the scatter of a grid point (2e-7 Eh)
     assert switch_index([-0.5, -1.0, -1.2, -1.1, -1.1 - 2e-7], [None, -0.9, -1.0, -1.0, -1.0], 1) == (None, None)
 

@@ -12,10 +12,11 @@ UCCSD(T) on an ROHF reference is not semicanonicalised and its (T) is meaningles
 The atoms' noble-gas cores (plus a filled (n-1)d shell from Ga on) are left out of the correlation by
 default (frozen core); a level can correlate every electron. Coupled-cluster iterations are converged
 to 1e-9 Eh and amplitude changes of 1e-7 where a fit reads the energy (the refinement points about the
-minimum, the atoms, single points), and to PySCF's defaults (1e-7 Eh, 1e-5) on the grid points that draw
-the curve (N2 in cc-pVDZ: energies within 2e-7 Eh of the tight ones, in two thirds of the iterations); a
-point whose SCF or CC iterations do not converge is flagged. The DIIS extrapolation keeps 12 vectors
-(PySCF's default 6 took a third more iterations on stretched and broken-symmetry N2). The amplitudes start from MP2 at every point: starting them from the previous distance's
+minimum, a well level's window, the atoms, single points), and to PySCF's defaults (1e-7 Eh, 1e-5) on the
+grid points that draw the curve (N2 in cc-pVDZ: energies within 2e-7 Eh of the tight ones, in two thirds
+of the iterations); a point whose SCF or CC iterations do not converge is flagged. The DIIS extrapolation
+keeps 12 vectors (PySCF's default 6 took a third more iterations on stretched and broken-symmetry N2).
+The amplitudes start from MP2 at every point: starting them from the previous distance's
 (projected onto the new orbitals) took as long or longer (CCSD/cc-pVDZ N2, steps of 0.05 A: 0.41 against
 0.37 s, 0.32 against 0.41 s, 0.49 against 0.46 s).
 """
@@ -258,7 +259,8 @@ class Correlated(Method):
                                 " UHF otherwise", "RHF": "RHF", "UHF": "UHF"}[ref],
             "correlated_electrons": level.electrons_text + (" (the atoms' noble-gas cores, and a filled (n-1)d shell"
                                                              " from Ga on, are not correlated)" if level.frozen_core else ""),
-            "convergence": ({"fitted_points_and_atoms": {"energy_hartree": CC_CONV_TOL, "amplitudes": CC_CONV_TOL_NORMT},
+            "convergence": ({"fitted_points_and_atoms": {"energy_hartree": CC_CONV_TOL,
+                                                         "amplitudes": CC_CONV_TOL_NORMT},
                              "grid_points": {"energy_hartree": CC_GRID_CONV_TOL, "amplitudes": CC_GRID_CONV_TOL_NORMT}}
                             if kind != "MP2" else None),
             "orbitals": self.orbitals_note(level),

@@ -272,7 +272,8 @@ def switch_once(branches: dict, n: int) -> tuple[list, str | None]:
         final.append(pick)
     at = final[switch].r_angstrom if final[switch] is not None else float("nan")
     r, u = rest[switch], uns[switch]
-    step = (u.energy_hartree - r.energy_hartree) if (r is not None and u is not None and r.trusted and u.trusted) else None
+    both = r is not None and u is not None and r.trusted and u.trusted
+    step = u.energy_hartree - r.energy_hartree if both else None
     steps = f", and the curve steps by {step:+.4f} Eh there" if step is not None else ""
     if why == "crossed":
         note = (f"restricted reference through the well, unrestricted from {at:.3f} A, where its energy first falls"
@@ -280,7 +281,8 @@ def switch_once(branches: dict, n: int) -> tuple[list, str | None]:
     elif why == "dives":
         note = (f"restricted reference through the well, unrestricted from {at:.3f} A, where the restricted curve"
                 " turns down as the bond stretches (the single-reference method failing on the restricted reference)"
-                + (f"; the unrestricted energy lies {step:+.4f} Eh from the restricted one there" if step is not None else "")
+                + (f"; the unrestricted energy lies {step:+.4f} Eh from the restricted one there"
+                   if step is not None else "")
                 + ": near the switch neither branch is right; a multireference level (NEVPT2) describes that stretch")
     else:
         note = (f"restricted reference through the well, unrestricted from {at:.3f} A, where the restricted reference"

@@ -68,10 +68,10 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
     states = needed_states(species, target.spin)
     tallies = (Tally(), Tally())
     (sx, _, _), (sy, _, _), atoms_x, atoms_y = await asyncio.gather(
-        protocol.scan(session, method, species, tx, r_all, tallies[0], refine_points=False, analyse=False, spatial=False,
-                      fitted=fitted),
-        protocol.scan(session, method, species, ty, r_all, tallies[1], refine_points=False, analyse=False, spatial=False,
-                      fitted=fitted),
+        protocol.scan(session, method, species, tx, r_all, tallies[0], refine_points=False, analyse=False,
+                      spatial=False, fitted=fitted),
+        protocol.scan(session, method, species, ty, r_all, tallies[1], refine_points=False, analyse=False,
+                      spatial=False, fitted=fitted),
         session.atoms(method, tx.level, states), session.atoms(method, ty.level, states))
     n = len(r_all)
     branches, sweeps, found = {}, {}, {}

@@ -215,7 +215,8 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
         pts = ref.result.branches["restricted"]
         by_index = {i: got[(name, round(p.r_bohr, 8))] for i, p in enumerate(pts)
                     if p is not None and (name, round(p.r_bohr, 8)) in got}
-        listed = assemble.flag_outliers(assemble.curve_points(by_index, n, "restricted", name), state.outlier_tol_hartree)
+        listed = assemble.flag_outliers(assemble.curve_points(by_index, n, "restricted", name),
+                                        state.outlier_tol_hartree)
         at = coarse_minimum(assemble.first_well(listed))
         if at is None:
             return
