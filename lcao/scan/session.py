@@ -391,8 +391,16 @@ def run_sync(coro):
         return helper.submit(_run, coro).result()
 
 
+def _quiet_about_interrupts(loop, context):
+    """The loop's exception handler: a task that an interrupt ended is not reported again when it is
+    collected (the caller says what the interrupt kept); anything else goes to asyncio's default."""
+    if not isinstance(context.get("exception"), KeyboardInterrupt):
+        loop.default_exception_handler(context)
+
+
 def _run(coro):
     loop = asyncio.new_event_loop()
+    loop.set_exception_handler(_quiet_about_interrupts)
     try:
         return loop.run_until_complete(coro)
     finally:
