@@ -131,9 +131,24 @@ class Store:
             uri = f"file:{self.path}?mode=ro" if read_only else self.path
             self.conn = sqlite3.connect(uri, uri=read_only, timeout=60.0, isolation_level=None)
             self.conn.execute("PRAGMA busy_timeout = 60000")
-            self._check_and_init()
+            self._init_when_free()
         except sqlite3.DatabaseError as exc:
             raise StoreError(f"{self.path} is not an lcao store ({exc})") from None
+
+    def _init_when_free(self, seconds: float = 60.0):
+        """:meth:`_check_and_init`, tried again while another process holds the file: switching a new
+        store to WAL takes a lock that SQLite does not wait for (two runs opening one new store at once
+        had one of them fail with "database is locked")."""
+        import time
+
+        deadline = time.monotonic() + seconds
+        while True:
+            try:
+                return self._check_and_init()
+            except sqlite3.OperationalError as exc:
+                if "locked" not in str(exc) or time.monotonic() > deadline:
+                    raise
+                time.sleep(0.05)
 
     def _check_and_init(self):
         c = self.conn

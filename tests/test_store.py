@@ -138,3 +138,32 @@ def test_a_schema_1_store_reads_and_is_upgraded_in_place(tmp_path):
     con = sqlite3.connect(path)
     assert con.execute("SELECT value FROM meta WHERE key='schema_version'").fetchone()[0] == "2"
     con.close()
+
+
+def _open_at_once(path, barrier, results):
+    from lcao.store import Store
+
+    barrier.wait()
+    try:
+        Store(path).close()
+        results.put("ok")
+    except Exception as exc:  # noqa: BLE001 - reported to the test
+        results.put(repr(exc))
+
+
+def test_runs_opening_one_new_store_at_once_all_open_it(tmp_path):
+    # three processes open one new store at the same moment, fifteen times: before the store waited for
+    # the lock that switching a new file to WAL takes, 10 of 120 such opens failed "database is locked"
+    import multiprocessing as mp
+
+    ctx = mp.get_context("spawn")
+    for k in range(15):
+        barrier, results = ctx.Barrier(3), ctx.Queue()
+        procs = [ctx.Process(target=_open_at_once, args=(str(tmp_path / f"s{k}.sqlite"), barrier, results))
+                 for _ in range(3)]
+        for p in procs:
+            p.start()
+        got = [results.get(timeout=120) for _ in procs]
+        for p in procs:
+            p.join()
+        assert got == ["ok"] * 3
