@@ -174,6 +174,20 @@ async def _correlate_branches(correlate, branches: dict, n: int, on_well=None, w
     return got
 
 
+def _level_points(got: dict, ref_points, branch: str, n: int) -> tuple[dict, list]:
+    """A branch at this level from the points computed so far (``got``: (sweep, r) -> point): (computed
+    points by grid index, CurvePoints per grid index). A trusted reference point with nothing at this level
+    was left out on purpose (the restricted branch past the switch, :func:`_correlate_branches`) and stays
+    None; an untrusted one gets a flagged placeholder."""
+    name = f"{branch}/correlated"
+    by_index = {i: got[(name, round(p.r_bohr, 8))] for i, p in enumerate(ref_points)
+                if p is not None and (name, round(p.r_bohr, 8)) in got}
+    listed = assemble.curve_points(by_index, n, branch, name)
+    listed = [q if q is not None or p is None or p.trusted else _placeholder(p, name)
+              for q, p in zip(listed, ref_points)]
+    return by_index, listed
+
+
 def _placeholder(ref_point: CurvePoint, sweep: str) -> CurvePoint:
     """A flagged point where the reference was not trusted: nothing was computed at this level there."""
     return CurvePoint(ref_point.r_bohr, float("nan"), False, f"reference not trusted: {ref_point.flag}",
@@ -212,12 +226,8 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
         """The refinement started on the well's restricted points, before the unrestricted branch is in:
         kept only where the finished curve gives the very same coarse minimum (see below)."""
         name = "restricted/correlated"
-        pts = ref.result.branches["restricted"]
-        by_index = {i: got[(name, round(p.r_bohr, 8))] for i, p in enumerate(pts)
-                    if p is not None and (name, round(p.r_bohr, 8)) in got}
-        listed = assemble.flag_outliers(assemble.curve_points(by_index, n, "restricted", name),
-                                        state.outlier_tol_hartree)
-        at = coarse_minimum(assemble.first_well(listed))
+        by_index, listed = _level_points(got, ref.result.branches["restricted"], "restricted", n)
+        at = coarse_minimum(assemble.first_well(assemble.flag_outliers(listed, state.outlier_tol_hartree)))
         if at is None:
             return
         partial = protocol.Scan(None, {name: by_index}, state, target)
@@ -245,15 +255,7 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
     sweeps: dict = {}
     for branch, pts in ref.result.branches.items():
         name = f"{branch}/correlated"
-        by_index = {}
-        for i, p in enumerate(pts):
-            if p is not None and (name, round(p.r_bohr, 8)) in got:
-                by_index[i] = got[(name, round(p.r_bohr, 8))]
-        found[name] = by_index
-        listed = assemble.curve_points(by_index, n, branch, name)
-        # a trusted reference point with nothing at this level was left out on purpose (the restricted branch
-        # past the switch, :func:`_correlate_branches`); an untrusted one gets a flagged placeholder
-        listed = [q if q is not None or p is None or p.trusted else _placeholder(p, name) for q, p in zip(listed, pts)]
+        found[name], listed = _level_points(got, pts, branch, n)
         sweeps[name] = listed
         branches[branch] = assemble.flag_outliers(listed, state.outlier_tol_hartree)
     atoms = await atoms_task
