@@ -121,16 +121,19 @@ def test_slurm_job_script_without_a_scheduler(tmp_path, capsys):
     assert "distributed.cli.dask_worker" in script and "--nworkers 8" in script and "--nthreads 1" in script
     assert "3 such job(s)" in script
     # the workers' settings travel as Dask configuration variables (Dask's documented DASK_* form, read by the
-    # worker when it starts): no statistical profiler, and the nanny's memory trimming raised
+    # worker when it starts): no statistical profiler, the nanny's memory trimming raised, and the event loop's
+    # health check once a second (Dask's default 20 ms)
     exports = [line for line in script.splitlines() if line.startswith("export DASK_")]
     env = dict(os.environ)
     for line in exports:
         name, value = line[len("export "):].split("=", 1)
         env[name] = value.strip('"')
     probe = ("import dask, distributed; print(dask.config.get('distributed.worker.profile.enabled'),"
-             " dask.config.get('distributed.nanny.pre-spawn-environ')['MALLOC_TRIM_THRESHOLD_'])")
+             " dask.config.get('distributed.nanny.pre-spawn-environ')['MALLOC_TRIM_THRESHOLD_'],"
+             " dask.config.get('distributed.admin.tick.interval'),"
+             " dask.config.get('distributed.worker.memory.monitor-interval'))")
     out = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, env=env, timeout=60).stdout
-    assert out.split() == ["False", str(2**27)]
+    assert out.split() == ["False", str(2**27), "1s", "1s"]
 
 
 def test_cluster_option_errors(tmp_path, capsys):
