@@ -127,10 +127,12 @@ def test_switch_rule_on_made_up_branches():
 
 
 def test_n2_ccsd_t_switches_once_and_every_point_is_trusted():
-    # the restricted CCSD(T) of stretched N2 turns down as the bond stretches (on the lowest RHF solution
-    # from 1.69 A here); the curve leaves it once for the broken-symmetry UCCSD(T) branch, and no point past
-    # the switch is taken for an outlier. The well and the far branch against PySCF directly: RHF +
-    # RCCSD(T) at 1.1 A; UHF from two quartet atoms of opposite spin + UCCSD(T) at 2.4 A
+    # the restricted CCSD(T) of stretched N2 turns down as the bond stretches (on the D_inf_h RHF from about
+    # 1.98 A); the curve leaves it once for the broken-symmetry UCCSD(T) branch, and no point past the switch
+    # is taken for an outlier. Against PySCF directly: RHF + RCCSD(T) at 1.1 A; the last restricted point on
+    # the RHF kept in the point group (symmetry=True, PySCF's default guess), where the lowest RHF breaks the
+    # g/u symmetry and RCCSD(T) on it lies 15-40 mEh lower (from 1.5 A); UHF from two quartet atoms of opposite
+    # spin + UCCSD(T) at 2.4 A
     from lcao.units import angstrom_to_bohr
 
     def correlated(mf):
@@ -139,8 +141,8 @@ def test_n2_ccsd_t_switches_once_and_every_point_is_trusted():
         c.kernel()
         return c.e_tot + c.ccsd_t()
 
-    def rhf(r):
-        mf = scf.RHF(gto.M(atom=f"N 0 0 0; N 0 0 {r}", basis="cc-pvdz", verbose=0))
+    def rhf(r, symmetric=False):
+        mf = scf.RHF(gto.M(atom=f"N 0 0 0; N 0 0 {r}", basis="cc-pvdz", symmetry=symmetric, verbose=0))
         mf.conv_tol = 1e-11
         return mf.run()
 
@@ -166,6 +168,11 @@ def test_n2_ccsd_t_switches_once_and_every_point_is_trusted():
     assert res.points[0].r_bohr == pytest.approx(float(angstrom_to_bohr(1.1)))
     assert res.points[0].energy_hartree == pytest.approx(correlated(rhf(1.1)), abs=1e-6)
     assert res.points[-1].energy_hartree == pytest.approx(correlated(broken_uhf(2.4)), abs=1e-6)
+    last = [p for p in res.points if p.branch == "restricted"][-1]
+    assert last.r_angstrom >= 1.8 and last.sweep == "restricted-symmetric/correlated"
+    assert any("symmetry-adapted" in note for note in res.scan.notes)
+    # a grid point's coupled cluster stops at PySCF's default convergence (1e-7 Eh, amplitudes 1e-5)
+    assert last.energy_hartree == pytest.approx(correlated(rhf(last.r_angstrom, True)), abs=2e-5)
 
 
 def test_extrapolated_well_level_gives_the_handbook_d0_of_h2_and_lih(tmp_path):

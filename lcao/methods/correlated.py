@@ -28,7 +28,7 @@ import math
 import numpy as np
 
 from ..errors import LevelError
-from .base import AtomResult, Capabilities, Method, PointResult, StatePlan, Target
+from .base import AtomResult, Capabilities, Method, PointResult, StatePlan, Target, is_symmetric
 
 KINDS = ("MP2", "CCSD", "CCSD(T)")
 #: prefix -> the Hartree-Fock method name of the reference
@@ -158,7 +158,7 @@ class Correlated(Method):
             return replace(ref, energy=float("nan"), components={"reference": ref.energy})
         hf = self._hf()
         rt = self._ref_target(target)
-        mol = hf._molecule(rt, ref.r_bohr)
+        mol = hf._molecule(rt, ref.r_bohr, is_symmetric(branch))  # a symmetry-adapted reference stays so
         mf = _reference_scf(mol, hf._reference(rt, branch), ref)
         if not mf.converged:
             return replace(ref, energy=float("nan"), converged=False, reason="the reference did not re-converge tightly",
@@ -331,7 +331,10 @@ def _correlate(mf, kind: str, frozen: int, fine: bool = True) -> tuple[float, bo
     mycc.conv_tol_normt = CC_CONV_TOL_NORMT if fine else CC_GRID_CONV_TOL_NORMT
     mycc.max_cycle = CC_MAX_CYCLE
     mycc.diis_space = CC_DIIS_SPACE
-    mycc.kernel()
+    try:
+        mycc.kernel()
+    except np.linalg.LinAlgError:  # DIIS on diverging amplitudes (a restricted reference of a stretched bond)
+        return float("nan"), False, int(mycc.__dict__.get("cycles", 0) or 0)
     ok = bool(mycc.converged) and math.isfinite(mycc.e_corr)
     e = float(mycc.e_corr)
     if kind == "CCSD(T)" and ok:

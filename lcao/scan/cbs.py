@@ -46,6 +46,9 @@ def _combined(cx: CurvePoint, cy: CurvePoint, sweep: str, x: int, y: int) -> Cur
         bad = cx if not cx.trusted else cy
         return CurvePoint(cy.r_bohr, float("nan"), False, f"a component is not trusted: {bad.flag}", cy.branch, sweep,
                           cx.cycles + cy.cycles)
+    if cx.sweep != cy.sweep:  # one basis's restricted solution kept the symmetry here, the other's broke it
+        return CurvePoint(cy.r_bohr, float("nan"), False, f"the components' references differ ({cx.sweep}, {cy.sweep})",
+                          cy.branch, sweep, cx.cycles + cy.cycles)
     comp = combine_components(cx.components, cy.components, x, y)
     return replace(cy, energy_hartree=comp["reference"] + comp["correlation"], sweep=sweep, cycles=cx.cycles + cy.cycles,
                    components=comp, sweep_gap_hartree=None)

@@ -313,17 +313,20 @@ class Session:
                 got[(sweep, round(ref.r_bohr, 8))] = p
                 tally.count(point_key(species, mult, level, sweep, ref.r_bohr), False)
             elif early is not None and (pending := early(ref)) is not None:
-                started.append((sweep, pending))
+                started.append(((sweep, branch, ref), pending))
             else:
                 todo.append((sweep, branch, ref))
 
-        async def take(sweep, pending):
+        async def take(job, pending):
             p = await pending
-            got[(sweep, round(p.r_bohr, 8))] = p
-            self.commit_point(species, mult, level, sweep, p, tally)
+            if p is None:  # the early task skipped it (its reference breaks the spatial symmetry): computed now
+                got.update(await self.correlate(method, species, target, [job], parts, tally, None, fine, priority))
+                return
+            got[(job[0], round(p.r_bohr, 8))] = p
+            self.commit_point(species, mult, level, job[0], p, tally)
             self._tick("correlation", 1)
 
-        taking = [take(sweep, pending) for sweep, pending in started]
+        taking = [take(job, pending) for job, pending in started]
         if not todo:
             await asyncio.gather(*taking)
             return got

@@ -243,15 +243,29 @@ class AtomLevelsTask:
 class CorrelationTask:
     """A level's energies on reference points: ``items`` are (reference point, branch), each correlated
     independently (:meth:`lcao.methods.Method.on_reference`); ``fine`` False for grid points (converged to
-    the library's defaults), True for the points a fit reads."""
+    the library's defaults), True for the points a fit reads. With ``unless_broken`` (the reference method
+    and target), a reference point that breaks the molecule's spatial symmetry is not correlated (None in its
+    place): the correlation started before the curve is done, whose restricted reference is then the
+    symmetry-adapted one there (:func:`lcao.scan.on_reference.symmetric_restricted`)."""
 
     method: Method
     target: Target
     items: tuple = field(repr=False)
     fine: bool = True
+    unless_broken: tuple | None = None
 
     def run(self) -> tuple:
-        return tuple(self.method.on_reference(self.target, point, branch, self.fine) for point, branch in self.items)
+        from .assemble import SPATIAL_BREAK_ELECTRONS
+
+        out = []
+        for point, branch in self.items:
+            if self.unless_broken is not None:
+                off = self.unless_broken[0].spatial_breaking(self.unless_broken[1], point)
+                if off is not None and off > SPATIAL_BREAK_ELECTRONS:
+                    out.append(None)
+                    continue
+            out.append(self.method.on_reference(self.target, point, branch, self.fine))
+        return tuple(out)
 
 
 @dataclass(frozen=True)
