@@ -12,6 +12,7 @@ import lcao
 from lcao.cli import main
 from lcao.export.fit_fields import fit_document
 from lcao.scan.grid import range_grid
+from lcao.units import bohr_to_angstrom
 
 #: most abundant isotopes (AME2020, Wang et al. 2021; quoted from memory)
 MASS = {"N": 14.003074004, "C": 12.0, "O": 15.994914620, "H": 1.007825032, "F": 18.998403163}
@@ -173,6 +174,31 @@ def test_n2_ccsd_t_switches_once_and_every_point_is_trusted():
     assert any("symmetry-adapted" in note for note in res.scan.notes)
     # a grid point's coupled cluster stops at PySCF's default convergence (1e-7 Eh, amplitudes 1e-5)
     assert last.energy_hartree == pytest.approx(correlated(rhf(last.r_angstrom, True)), abs=2e-5)
+
+
+def test_c2_ccsd_t_well_is_on_the_symmetry_adapted_rhf():
+    # the lowest RHF of C2 breaks the g/u symmetry already about its equilibrium (cc-pVDZ, from about 1.13 A);
+    # RCCSD(T) is defined on the RHF kept in D_inf_h (common practice). Against PySCF directly: RHF with
+    # symmetry=True (its default guess) and frozen-core RCCSD(T) at five distances 0.01 A apart, minimum of a
+    # quartic: 1.2705 A (this check's own computation). On the broken RHF the curve crossed to the UHF branch at
+    # 1.25 A and its fit gave 1.17 A.
+    rs = np.array([1.25, 1.26, 1.27, 1.28, 1.29])
+    es = []
+    for r in rs:
+        mf = scf.RHF(gto.M(atom=f"C 0 0 0; C 0 0 {r}", basis="cc-pvdz", symmetry=True, verbose=0))
+        mf.conv_tol = 1e-11
+        mycc = cc.CCSD(mf.run(), frozen=2)
+        mycc.conv_tol, mycc.conv_tol_normt = 1e-10, 1e-8
+        mycc.kernel()
+        es.append(mycc.e_tot + mycc.ccsd_t())
+    poly = np.polyfit(rs, es, 4)
+    re_pyscf = next(x.real for x in np.roots(np.polyder(poly)) if abs(x.imag) < 1e-9 and 1.25 < x.real < 1.29)
+
+    res = lcao.curve("C2", "CCSD(T)/cc-pVDZ", range_grid(0.95, 2.45, 11), multiplicity=1, analyse_points=False)
+    well = [p for p in res.points if 1.05 < p.r_angstrom < 2.2]
+    assert well and all(p.trusted and p.sweep == "restricted-symmetric/correlated" for p in well)
+    assert any("symmetry-adapted" in note for note in res.scan.notes)
+    assert float(bohr_to_angstrom(res.fit.local.re)) == pytest.approx(re_pyscf, abs=1e-4)
 
 
 def test_extrapolated_well_level_gives_the_handbook_d0_of_h2_and_lih(tmp_path):

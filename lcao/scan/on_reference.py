@@ -146,13 +146,18 @@ async def symmetric_restricted(session, ref_method, species, ref_target, r_all, 
         return None
     n = len(r_all)
     i0 = planning.equilibrium_index(r_all, expected_bond_length_bohr(*species.z))
-    spec = planning.from_equilibrium(name, r_all, i0)[0]  # outward: a compressed bond keeps its symmetry
-    got = await session.chain(ref_method, species, ref_target, spec, tally)
-    ref.found[spec.sweep] = got
-    pts = assemble.flag_outliers(assemble.curve_points(got, n, name, spec.sweep))
+    specs = planning.from_equilibrium(name, r_all, i0)
+    if min(broken) >= i0:  # the inward half only where a shorter bond breaks it too (C2 in cc-pVDZ from 1.13 A)
+        specs = specs[:1]
+    got: dict = {}
+    for part in await asyncio.gather(*(session.chain(ref_method, species, ref_target, s, tally) for s in specs)):
+        got.update(part)
+    sweep = specs[0].sweep
+    ref.found[sweep] = got
+    pts = assemble.flag_outliers(assemble.curve_points(got, n, name, sweep))
     out = list(rest)
     for i in broken:
-        out[i] = pts[i] if pts[i] is not None else _placeholder(rest[i], spec.sweep, "no symmetry-adapted reference")
+        out[i] = pts[i] if pts[i] is not None else _placeholder(rest[i], sweep, "no symmetry-adapted reference")
     gaps = [pts[i].energy_hartree - rest[i].energy_hartree for i in broken if pts[i] is not None and pts[i].trusted]
     group = point_group(species.atoms)
     note = (f"restricted reference: the symmetry-adapted {ref_target.level.method} solution ({group})"
@@ -236,6 +241,12 @@ def _sweep(ref_point) -> str:
     """The sweep this level's point on a reference point is stored under: ``<reference branch>/correlated``
     (``restricted-symmetric/correlated`` on a symmetry-adapted restricted point)."""
     return f"{ref_point.branch}/correlated"
+
+
+def _reference_branch(point) -> str:
+    """The reference branch behind this level's curve point (the inverse of :func:`_sweep`)."""
+    suffix = "/correlated"
+    return point.sweep[:-len(suffix)] if point.sweep.endswith(suffix) else point.branch
 
 
 def _key(ref_point) -> tuple:
@@ -409,11 +420,13 @@ async def refine_at(session, method, species, target, done, nearest, centre: flo
     ref_target = Target(target.atoms, target.charge, target.multiplicity, ref_level)
     ref_method = method_for(ref_level)
 
+    branch = _reference_branch(nearest)  # the symmetry-adapted restricted one where the curve took it
+
     async def window(centre_, start):
-        specs = planning.refinement(nearest.branch, centre_, start)
+        specs = planning.refinement(branch, centre_, start)
         merged = await session.chains(ref_method, species, ref_target, specs, tally)
         name = specs[0].sweep
-        jobs = [(name, nearest.branch, merged[i]) for i in sorted(merged) if merged[i].usable]
+        jobs = [(name, branch, merged[i]) for i in sorted(merged) if merged[i].usable]
         got = await session.correlate(method, species, target, jobs, max(1, session.executor.workers), tally)
         by_index = {i: got[(name, round(p.r_bohr, 8))] for i, p in merged.items() if (name, round(p.r_bohr, 8)) in got}
         listed = assemble.curve_points(by_index, len(specs[0].r_all), nearest.branch, name)
