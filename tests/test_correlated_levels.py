@@ -199,6 +199,12 @@ def test_c2_ccsd_t_well_is_on_the_symmetry_adapted_rhf():
     assert well and all(p.trusted and p.sweep == "restricted-symmetric/correlated" for p in well)
     assert any("symmetry-adapted" in note for note in res.scan.notes)
     assert float(bohr_to_angstrom(res.fit.local.re)) == pytest.approx(re_pyscf, abs=1e-4)
+    # the same well as a well level on a Hartree-Fock curve (its window about the minimum): 1.41 A before,
+    # on the broken RHF
+    ladder = lcao.curve("C2", "HF/cc-pVDZ", points=16, multiplicity=1, analyse_points=False,
+                        well_level="CCSD(T)/cc-pVDZ")
+    assert all(p.sweep == "restricted-symmetric/correlated" for p in ladder.well_scan.points if p is not None)
+    assert float(bohr_to_angstrom(ladder.fit.local.re)) == pytest.approx(re_pyscf, abs=1e-4)
 
 
 def test_extrapolated_well_level_gives_the_handbook_d0_of_h2_and_lih(tmp_path):

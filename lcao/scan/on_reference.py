@@ -303,8 +303,7 @@ async def scan(session, method, species, target: Target, r_all, tally: Tally, *,
     n = len(r_all)
     state = method.state_plan(target.level, target.multiplicity)
     ref_branches = dict(ref.result.branches)
-    symmetric = None if fitted else await symmetric_restricted(session, ref_method, species, ref_target, r_all, ref,
-                                                               ref_tally)
+    symmetric = await symmetric_restricted(session, ref_method, species, ref_target, r_all, ref, ref_tally)
     if symmetric is not None:
         ref_branches["restricted"] = symmetric[0]
     tally.merge(ref_tally)
