@@ -10,8 +10,9 @@ reference of a stretched bond it can fall below the right curve.
 The refinement about the minimum follows the reference's well branch at the level's own minimum.
 
 The restricted reference is the symmetry-adapted one: where the lowest restricted solution of a stretched
-bond breaks the molecule's spatial symmetry (N2 in cc-pVDZ from about 1.47 A), the restricted solution kept in
-the point group takes its place (:func:`symmetric_restricted`). Coupled cluster and MP2 on the broken
+bond, or of C2 already about its equilibrium, breaks the molecule's spatial symmetry (N2 in cc-pVDZ from about
+1.47 A), the restricted solution kept in the point group takes its place (:func:`symmetric_restricted`), in a
+well level's window too, and the refinement follows it. Coupled cluster and MP2 on the broken
 determinant fall tens of millihartree below the usual curve and turn down early (N2 CCSD(T)/cc-pVDZ at 1.62 A:
 40 mEh below, against PySCF's RCCSD(T) on the symmetry-adapted RHF); on the symmetry-adapted one the curve is
 the usual RCCSD(T) curve up to the switch to the unrestricted branch. Its points are stored under their own
@@ -120,9 +121,10 @@ class EarlyCorrelation:
 async def symmetric_restricted(session, ref_method, species, ref_target, r_all, ref, tally: Tally):
     """Where a trusted point of the reference's restricted branch breaks the molecule's spatial symmetry (its
     density off the symmetry blocks by more than :data:`lcao.scan.assemble.SPATIAL_BREAK_ELECTRONS`), the
-    symmetry-adapted restricted solution there instead: its sweep from equilibrium outward (the same sweep as a
-    Hartree-Fock curve's symmetry-adapted branch, :func:`lcao.scan.protocol.symmetric_branch`, so the store
-    shares it), and its points in place of the broken ones. The points are added to ``ref.found``.
+    symmetry-adapted restricted solution there instead: its sweep from equilibrium, outward and, where a
+    point inside it breaks too, inward (the same sweep as a Hartree-Fock curve's symmetry-adapted branch,
+    :func:`lcao.scan.protocol.symmetric_branch`, so the store shares it), and its points in place of the
+    broken ones. The points are added to ``ref.found``.
 
     Returns:
         (the restricted branch with the symmetry-adapted points in place, a note), or None where no point
