@@ -30,7 +30,7 @@ from ..points import CurvePoint
 from ..units import bohr_to_angstrom
 from . import assemble, plan as planning
 from .session import Tally
-from .tasks import CorrelationTask, SpatialCheckTask
+from .tasks import CorrelationTask
 
 
 #: the search for the switch from the restricted to the unrestricted branch: restricted points past the
@@ -132,31 +132,20 @@ async def symmetric_restricted(session, ref_method, species, ref_target, r_all, 
     """
     from ..methods.molecule import point_group
     from .grid import expected_bond_length_bohr
-    from .protocol import raw_point
+    from .protocol import off_symmetry, symmetric_sweep
 
     rest = ref.result.branches.get("restricted")
     name = ref_method.symmetric_branch(ref_target.level, "restricted") if rest is not None else None
     if name is None:
         return None
-    items = [(i, raw_point(ref, p)) for i, p in enumerate(rest) if p is not None and p.trusted]
-    items = [(i, raw) for i, raw in items if raw is not None]
-    if not items:
-        return None
-    measured = (await session.run(SpatialCheckTask(ref_method, ref_target, tuple(raw for _, raw in items)))).value
-    broken = [i for (i, _), x in zip(items, measured) if x is not None and x > assemble.SPATIAL_BREAK_ELECTRONS]
+    off = await off_symmetry(session, ref_method, ref_target, rest, ref.found)
+    broken = [i for i, x in enumerate(off) if x is not None and x > assemble.SPATIAL_BREAK_ELECTRONS]
     if not broken:
         return None
-    n = len(r_all)
     i0 = planning.equilibrium_index(r_all, expected_bond_length_bohr(*species.z))
-    specs = planning.from_equilibrium(name, r_all, i0)
-    if min(broken) >= i0:  # the inward half only where a shorter bond breaks it too (C2 in cc-pVDZ from 1.13 A)
-        specs = specs[:1]
-    got: dict = {}
-    for part in await asyncio.gather(*(session.chain(ref_method, species, ref_target, s, tally) for s in specs)):
-        got.update(part)
-    sweep = specs[0].sweep
-    ref.found[sweep] = got
-    pts = assemble.flag_outliers(assemble.curve_points(got, n, name, sweep))
+    # the inward half only where a shorter bond breaks it too (C2 in cc-pVDZ from 1.13 A)
+    sweep, pts = await symmetric_sweep(session, ref_method, species, ref_target, r_all, i0, name, ref.found, tally,
+                                       inward=min(broken) < i0)
     out = list(rest)
     for i in broken:
         out[i] = pts[i] if pts[i] is not None else _placeholder(rest[i], sweep, "no symmetry-adapted reference")

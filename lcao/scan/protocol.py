@@ -282,17 +282,11 @@ async def symmetric_branch(session, method, species, target, r_all, i0, final, f
         :data:`lcao.scan.assemble.SPATIAL_MATTERS_HARTREE`, or where the method has no symmetry-adapted branch.
     """
     from ..methods.molecule import point_group
-    from .tasks import SpatialCheckTask
 
-    n = len(r_all)
-    items = [(i, retry.raw_of(found, p)) for i, p in enumerate(final) if p is not None and p.trusted]
-    items = [(i, raw) for i, raw in items if raw is not None]
-    if not items or method.symmetric_branch(target.level, final[items[0][0]].branch) is None:
+    first = next((p for p in final if p is not None and p.trusted), None)
+    if first is None or method.symmetric_branch(target.level, first.branch) is None:
         return None
-    measured = (await session.run(SpatialCheckTask(method, target, tuple(raw for _, raw in items)))).value
-    off = [None] * n
-    for (i, _), x in zip(items, measured):
-        off[i] = x
+    off = await off_symmetry(session, method, target, final, found)
     broken = [i for i, x in enumerate(off) if x is not None and x > assemble.SPATIAL_BREAK_ELECTRONS]
     if not broken:
         return None
@@ -300,13 +294,7 @@ async def symmetric_branch(session, method, species, target, r_all, i0, final, f
     name = method.symmetric_branch(target.level, base)
     if name is None:
         return None
-    specs = planning.from_equilibrium(name, r_all, i0)
-    got: dict = {}
-    for part in await asyncio.gather(*(session.chain(method, species, target, s, tally) for s in specs)):
-        got.update(part)
-    sweep = specs[0].sweep
-    found[sweep] = got  # the scan's own record: the analysis finds these points too
-    pts = assemble.flag_outliers(assemble.curve_points(got, n, name, sweep))
+    sweep, pts = await symmetric_sweep(session, method, species, target, r_all, i0, name, found, tally)
     homonuclear = species.atoms[0] == species.atoms[1]
     what = ("inversion symmetry (g/u): the two atoms no longer carry the same density" if homonuclear
             else "cylindrical symmetry (sigma/pi separation)")
@@ -317,6 +305,37 @@ async def symmetric_branch(session, method, species, target, r_all, i0, final, f
         refined = await refine.well_refinement(session, method, species, target, found, {name: pts}, name, tally)
         sp = replace(sp, refined=refined)
     return sp, pts, sweep
+
+
+async def off_symmetry(session, method, target, points, found) -> list:
+    """Per curve point of ``points`` (None allowed), the electrons its solution carries off the molecule's
+    spatial symmetry (one :class:`lcao.scan.tasks.SpatialCheckTask` for all; the computed points behind them
+    in ``found``); None where a point is not trusted or not measured."""
+    from .tasks import SpatialCheckTask
+
+    items = [(i, retry.raw_of(found, p)) for i, p in enumerate(points) if p is not None and p.trusted]
+    items = [(i, raw) for i, raw in items if raw is not None]
+    off = [None] * len(points)
+    if items:
+        measured = (await session.run(SpatialCheckTask(method, target, tuple(raw for _, raw in items)))).value
+        for (i, _), x in zip(items, measured):
+            off[i] = x
+    return off
+
+
+async def symmetric_sweep(session, method, species, target, r_all, i0, name, found, tally, inward=True):
+    """The symmetry-adapted branch ``name``'s sweep from equilibrium (outward, and inward with ``inward``), its
+    points recorded in ``found`` (the analysis finds them there): (the sweep's name, its CurvePoints per index,
+    outliers flagged)."""
+    specs = planning.from_equilibrium(name, r_all, i0)
+    if not inward:
+        specs = specs[:1]
+    got: dict = {}
+    for part in await asyncio.gather(*(session.chain(method, species, target, s, tally) for s in specs)):
+        got.update(part)
+    sweep = specs[0].sweep
+    found[sweep] = got
+    return sweep, assemble.flag_outliers(assemble.curve_points(got, len(r_all), name, sweep))
 
 
 async def _instability_start(session, method, species, target, point, branch, r_bohr):
